@@ -1,0 +1,118 @@
+"""Index-based distance queries on a cloud, the same for every metric.
+
+All core steps (landmarks, densities, complexes) ask for distances through
+these functions, so a metric is implemented once. Distances come back in the
+metric's own units unless a name says ``working``.
+"""
+
+from __future__ import annotations
+
+from functools import lru_cache
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tdakit.core.cloud import Cloud
+
+# Blocked brute force beyond this many working dimensions: KD-trees lose to it there
+# (common practice; scikit-learn switches similarly).
+TREE_MAX_DIMS = 12
+BLOCK_BYTES = 64 * 2**20
+
+
+@lru_cache(maxsize=2)
+def working_points(cloud: Cloud) -> NDArray[np.float64]:
+    """Working-space coordinates of the cloud (cached per cloud object)."""
+    work = cloud.metric.embed(cloud.points)
+    work.setflags(write=False)
+    return work
+
+
+def pairwise(cloud: Cloud, rows: NDArray[np.intp], cols: NDArray[np.intp]) -> NDArray[np.float64]:
+    """Metric distances between the points ``rows`` and ``cols`` (shape (len(rows), len(cols)))."""
+    if cloud.distance_matrix is not None:
+        return cloud.distance_matrix[np.ix_(rows, cols)]
+    work = working_points(cloud)
+    return cloud.metric.to_metric(cloud.metric.working_pairwise(work[rows], work[cols]))
+
+
+def block_rows(n_cols: int, n_rows: int) -> int:
+    """How many rows of an (rows x n_cols) float64 block fit the block budget."""
+    return int(max(1, min(n_rows, BLOCK_BYTES // (8 * max(n_cols, 1)))))
+
+
+def working_to_point(cloud: Cloud, index: int, rows: NDArray[np.intp] | None = None) -> NDArray[np.float64]:
+    """Working-space distances from point ``index`` to every point (or to ``rows``)."""
+    if cloud.distance_matrix is not None:
+        column = cloud.distance_matrix[:, index]
+        return column if rows is None else column[rows]
+    work = working_points(cloud)
+    target = work if rows is None else work[rows]
+    return cloud.metric.working_to_point(target, work[index])
+
+
+def to_working(cloud: Cloud, value):
+    """Metric value(s) expressed in working-space units (identity for precomputed)."""
+    return value if cloud.distance_matrix is not None else cloud.metric.to_working(value)
+
+
+def to_metric(cloud: Cloud, value):
+    """Working-space value(s) expressed in the metric's units (identity for precomputed)."""
+    return np.asarray(value, dtype=np.float64) if cloud.distance_matrix is not None else cloud.metric.to_metric(value)
+
+
+def nearest_among(cloud: Cloud, targets: NDArray[np.intp]) -> tuple[NDArray[np.intp], NDArray[np.float64]]:
+    """For every point, the position in ``targets`` of its nearest target and the metric distance."""
+    targets = np.asarray(targets, dtype=np.intp)
+    if cloud.distance_matrix is None and _use_tree(cloud):
+        tree = _tree(cloud, targets)
+        dist, pos = tree.query(working_points(cloud), k=1, p=cloud.metric.p, workers=-1)
+        return pos.astype(np.intp), to_metric(cloud, dist)
+    pos = np.empty(cloud.n_points, dtype=np.intp)
+    dist = np.empty(cloud.n_points)
+    step = block_rows(targets.size, cloud.n_points)
+    for start in range(0, cloud.n_points, step):
+        rows = np.arange(start, min(start + step, cloud.n_points))
+        block = pairwise(cloud, rows, targets)
+        pos[rows] = np.argmin(block, axis=1)
+        dist[rows] = block[np.arange(rows.size), pos[rows]]
+    return pos, dist
+
+
+def knn_distances(
+    cloud: Cloud, k: int, *, include_self: bool, rows: NDArray[np.intp] | None = None
+) -> NDArray[np.float64]:
+    """Metric distance from every point (or from ``rows``) to its k nearest points, ascending.
+
+    With ``include_self=False`` the point itself is excluded (duplicates of it are not);
+    with ``include_self=True`` the point counts as its own first neighbour at distance 0.
+    """
+    extra = 0 if include_self else 1
+    queries = np.arange(cloud.n_points) if rows is None else np.asarray(rows, dtype=np.intp)
+    if cloud.distance_matrix is None and _use_tree(cloud):
+        tree = _tree(cloud, None)
+        dist, _ = tree.query(working_points(cloud)[queries], k=k + extra, p=cloud.metric.p, workers=-1)
+        return to_metric(cloud, np.asarray(dist).reshape(queries.size, k + extra)[:, extra:])
+    out = np.empty((queries.size, k))
+    everyone = np.arange(cloud.n_points)
+    step = block_rows(cloud.n_points, queries.size)
+    for start in range(0, queries.size, step):
+        block_queries = queries[start:start + step]
+        block = pairwise(cloud, block_queries, everyone)
+        if not include_self:
+            block[np.arange(block_queries.size), block_queries] = np.inf
+        out[start:start + step] = np.sort(np.partition(block, k - 1, axis=1)[:, :k], axis=1)
+    return out
+
+
+def _use_tree(cloud: Cloud) -> bool:
+    dims = 3 if cloud.metric.name == "angular" else cloud.n_dims
+    return dims <= TREE_MAX_DIMS
+
+
+def _tree(cloud: Cloud, subset: NDArray[np.intp] | None):
+    from scipy.spatial import cKDTree
+
+    work = working_points(cloud)
+    data = work if subset is None else work[subset]
+    return cKDTree(data, boxsize=cloud.metric.working_boxsize(), balanced_tree=False, compact_nodes=False)

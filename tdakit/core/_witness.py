@@ -1,0 +1,86 @@
+"""Witness-complex edge values and nearest-landmark tables, computed in blocks of witnesses."""
+
+from __future__ import annotations
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tdakit.core import _geometry
+from tdakit.core.cloud import Cloud
+
+_PAIR_BLOCK = 4_000_000  # candidate (witness, edge) entries held at once
+
+
+def _relative_distances(cloud, rows, landmarks, nu):
+    block = _geometry.pairwise(cloud, rows, landmarks)
+    if nu == 0:
+        return block
+    return block - np.partition(block, nu - 1, axis=1)[:, nu - 1, None]
+
+
+def lazy_witness_work(cloud: Cloud, landmarks: NDArray[np.intp], nu: int, cap: float, sample: int = 2000) -> float:
+    """Estimated number of (witness, landmark pair) evaluations for the lazy witness edges."""
+    rng = np.random.default_rng(0)
+    rows = np.sort(rng.choice(cloud.n_points, size=min(sample, cloud.n_points), replace=False))
+    relative = _relative_distances(cloud, rows, landmarks, nu)
+    per_witness = (relative <= cap).sum(axis=1).astype(np.float64)
+    return float((per_witness * (per_witness - 1) / 2).mean() * cloud.n_points)
+
+
+def lazy_witness_edges(cloud: Cloud, landmarks: NDArray[np.intp], nu: int, cap: float) -> NDArray[np.float64]:
+    """Matrix of lazy witness edge values e(a, b) between landmarks (inf above ``cap``).
+
+    e(a, b) = max(0, min_w [max(d(a, w), d(b, w)) - m_nu(w)]), where m_nu(w) is the
+    distance from w to its nu-th nearest landmark (0 when nu = 0); every cloud
+    point is a witness. Vertices enter at 0.
+    """
+    m = landmarks.size
+    edges = np.full((m, m), np.inf)
+    step = _geometry.block_rows(m, cloud.n_points)
+    for start in range(0, cloud.n_points, step):
+        rows = np.arange(start, min(start + step, cloud.n_points))
+        _scatter_block(edges, _relative_distances(cloud, rows, landmarks, nu), cap)
+    edges = np.maximum(np.minimum(edges, edges.T), 0.0)
+    np.fill_diagonal(edges, 0.0)
+    return edges
+
+
+def _scatter_block(edges, relative, cap):
+    n_cand = int((relative <= cap).sum(axis=1).max())
+    if n_cand < 2:
+        return
+    chunk = max(1, _PAIR_BLOCK // (n_cand * (n_cand - 1) // 2))
+    first, second = np.triu_indices(n_cand, 1)
+    for s in range(0, relative.shape[0], chunk):
+        part = relative[s:s + chunk]
+        order = np.argsort(part, axis=1)[:, :n_cand]
+        values = np.take_along_axis(part, order, axis=1)
+        # For a witness with landmarks sorted by relative distance, the pair (i < j) costs values[j].
+        pair_values = values[:, second]
+        keep = pair_values <= cap
+        a, b = order[:, first][keep], order[:, second][keep]
+        np.minimum.at(edges, (np.minimum(a, b), np.maximum(a, b)), pair_values[keep])
+
+
+def nearest_landmark_table(
+    cloud: Cloud, landmarks: NDArray[np.intp], cap: float, simplex_size: int
+) -> list[list[tuple[int, float]]]:
+    """Per witness, the landmarks that can take part in a witnessed simplex, as (landmark, squared distance).
+
+    A landmark in a simplex of ``simplex_size`` vertices witnessed at relaxation
+    alpha <= cap lies within d_(s+1)^2 + cap^2 of the witness, where d_(s+1) is the
+    distance to its (s+1)-th nearest landmark, so farther landmarks are left out.
+    """
+    m = landmarks.size
+    rank = min(simplex_size, m - 1)
+    table: list[list[tuple[int, float]]] = []
+    step = _geometry.block_rows(m, cloud.n_points)
+    for start in range(0, cloud.n_points, step):
+        rows = np.arange(start, min(start + step, cloud.n_points))
+        squared = _geometry.pairwise(cloud, rows, landmarks) ** 2
+        limit = np.partition(squared, rank, axis=1)[:, rank] + cap * cap
+        order = np.argsort(squared, axis=1)
+        for r in range(rows.size):
+            keep = order[r][squared[r, order[r]] <= limit[r]]
+            table.append(list(zip(keep.tolist(), squared[r, keep].tolist())))
+    return table

@@ -1,0 +1,217 @@
+"""The point-cloud value object and the checks that guard every array that becomes one."""
+
+from __future__ import annotations
+
+import hashlib
+import warnings
+from dataclasses import dataclass, field
+from functools import cached_property
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from tdakit.core.metrics import Metric
+from tdakit.errors import DuplicatePointsWarning, InvalidDataError
+
+__all__ = ["Cloud", "make_cloud", "MAX_EXTENT", "MIN_EXTENT"]
+
+# Squared distances overflow float64 near 1.3e154 and underflow near 1e-154 (common practice:
+# float64 range is ~1e308 / 1e-308). Keep a margin so sums over many axes stay finite.
+MAX_EXTENT = 1e150
+MIN_EXTENT = 1e-150
+
+
+@dataclass(frozen=True, eq=False)
+class Cloud:
+    """An immutable, validated point cloud together with the metric that measures it.
+
+    Build one with :func:`tdakit.load_cloud`; every later step (landmarks,
+    complexes, densities) measures distances through ``metric``.
+
+    Attributes
+    ----------
+    points : ndarray of shape (n_points, n_dims)
+        Float64 coordinates, read-only. For ``metric.name == "precomputed"`` this
+        has zero columns and ``distance_matrix`` holds the distances.
+    metric : Metric
+        How distances are measured.
+    columns : tuple of str
+        Names of the coordinate columns.
+    source : str
+        Where the data came from (file path or a description).
+    distance_matrix : ndarray of shape (n_points, n_points) or None
+        The given distances (precomputed metric only), read-only.
+    n_duplicates : int
+        Number of points that repeat an earlier point exactly (accepted, reported).
+    shift, scale : ndarray or None
+        Standardisation applied at load time: ``points = (raw - shift) / scale``.
+    source_checksum : str or None
+        SHA-256 of the input file, when the cloud was read from one.
+    """
+
+    points: NDArray[np.float64]
+    metric: Metric
+    columns: tuple[str, ...]
+    source: str = "array"
+    distance_matrix: NDArray[np.float64] | None = None
+    n_duplicates: int = 0
+    shift: NDArray[np.float64] | None = field(default=None, repr=False)
+    scale: NDArray[np.float64] | None = field(default=None, repr=False)
+    source_checksum: str | None = None
+
+    @property
+    def n_points(self) -> int:
+        return int(self.points.shape[0])
+
+    @property
+    def n_dims(self) -> int:
+        return int(self.points.shape[1])
+
+    @property
+    def n_distinct(self) -> int:
+        return self.n_points - self.n_duplicates
+
+    @cached_property
+    def fingerprint(self) -> str:
+        """SHA-256 of the coordinates (or distances) and metric: identifies the data of a run."""
+        digest = hashlib.sha256(repr(self.metric.to_dict()).encode())
+        data = self.points if self.distance_matrix is None else self.distance_matrix
+        digest.update(np.ascontiguousarray(data).tobytes())
+        return digest.hexdigest()
+
+    def __repr__(self) -> str:
+        return (f"Cloud(n_points={self.n_points}, n_dims={self.n_dims}, metric={self.metric.name!r}, "
+                f"source={self.source!r}, n_duplicates={self.n_duplicates})")
+
+
+def as_point_array(points: ArrayLike, name: str = "points", min_points: int = 2) -> NDArray[np.float64]:
+    """Check that ``points`` is a finite numeric 2-D array with enough rows; return float64 C-order."""
+    array = _to_numeric_array(points, name)
+    if array.ndim != 2:
+        hint = " Use reshape(-1, 1) for one coordinate per point." if array.ndim == 1 else ""
+        raise InvalidDataError(
+            f"Input '{name}' must be a 2-D array of shape (n_points, n_dims). Got {array.ndim}-D input "
+            f"with shape={array.shape} instead.{hint}", parameter=name)
+    if array.shape[0] < min_points:
+        raise InvalidDataError(
+            f"Found a point cloud with {array.shape[0]} point(s) (shape={array.shape}) while a minimum of "
+            f"{min_points} is required.", parameter=name)
+    if array.shape[1] < 1:
+        raise InvalidDataError(
+            f"Found a point cloud with 0 column(s) (shape={array.shape}) while a minimum of 1 is required.",
+            parameter=name)
+    array = np.ascontiguousarray(array, dtype=np.float64)
+    _check_finite(array, name)
+    return array
+
+
+def _to_numeric_array(points: ArrayLike, name: str) -> np.ndarray:
+    try:
+        array = np.asarray(points)
+    except ValueError as exc:  # numpy refuses ragged nested sequences
+        raise InvalidDataError(
+            f"Input '{name}' has rows of different lengths, so it is not a table of coordinates ({exc}).",
+            parameter=name) from None
+    kind = array.dtype.kind
+    if kind == "b":
+        raise InvalidDataError(
+            f"Input '{name}' is boolean; coordinates must be numbers. Cast explicitly with "
+            f".astype(float) if 0/1 coordinates are really meant.", parameter=name)
+    if kind == "c":
+        raise InvalidDataError(
+            f"Input '{name}' is complex; coordinates must be real. Split real and imaginary parts into "
+            f"separate columns first.", parameter=name)
+    if kind not in "iuf":
+        raise InvalidDataError(
+            f"Input '{name}' must hold real numbers (int or float). Got dtype {array.dtype} instead; "
+            f"convert or drop non-numeric columns first.", parameter=name)
+    return array
+
+
+def _check_finite(array: NDArray[np.float64], name: str) -> None:
+    bad = ~np.isfinite(array)
+    if bad.any():
+        row, col = np.argwhere(bad)[0]
+        what = "NaN" if np.isnan(array[row, col]) else "infinity"
+        raise InvalidDataError(
+            f"Input '{name}' contains {what} at row {row} (column {col}); {int(bad.any(axis=1).sum())} row(s) "
+            f"are affected. Drop or impute those rows first.", parameter=name)
+
+
+def check_extent(array: NDArray[np.float64], name: str) -> None:
+    """Refuse coordinates whose squared differences would overflow or underflow float64."""
+    extent = float((array.max(axis=0) - array.min(axis=0)).max()) if array.size else 0.0
+    if extent > MAX_EXTENT:
+        raise InvalidDataError(
+            f"Input '{name}' spans {extent:.3g} along one axis; squared distances would overflow float64 "
+            f"(limit {MAX_EXTENT:g}). Rescale the coordinates (or pass standardize=True); tdakit does not "
+            f"rescale silently.", parameter=name)
+    if 0.0 < extent < MIN_EXTENT:
+        raise InvalidDataError(
+            f"Input '{name}' spans only {extent:.3g}; squared distances would underflow to zero "
+            f"(limit {MIN_EXTENT:g}). Rescale the coordinates (or pass standardize=True); tdakit does not "
+            f"rescale silently.", parameter=name)
+
+
+def count_duplicates(array: NDArray[np.float64]) -> int:
+    """Number of rows equal to an earlier row (hash of the bytes; -0.0 counts as 0.0)."""
+    rows = np.ascontiguousarray(array + 0.0)
+    keys = rows.view(np.dtype((np.void, rows.dtype.itemsize * rows.shape[1]))).ravel()
+    return int(rows.shape[0] - np.unique(keys).size)
+
+
+def make_cloud(
+    points: ArrayLike,
+    metric: Metric,
+    *,
+    columns: tuple[str, ...] | None = None,
+    source: str = "array",
+    standardize: bool = False,
+    source_checksum: str | None = None,
+) -> Cloud:
+    """Validate coordinates (or a distance matrix) against ``metric`` and build a :class:`Cloud`."""
+    if metric.name == "precomputed":
+        from tdakit.core._checks_matrix import check_distance_matrix
+
+        matrix = check_distance_matrix(points, "points")
+        n_dup = int(np.triu(matrix == 0.0, k=1).any(axis=0).sum())
+        empty = np.zeros((matrix.shape[0], 0))
+        return _finish(Cloud(empty, metric, (), source, matrix, n_dup, source_checksum=source_checksum))
+    array = as_point_array(points)
+    cols = tuple(columns) if columns is not None else tuple(f"x{i}" for i in range(array.shape[1]))
+    shift = scale = None
+    if standardize:
+        array, shift, scale = _standardize(array, metric)
+    check_extent(array, "points")
+    from tdakit.core._checks_metric import check_points_for_metric
+
+    metric = check_points_for_metric(array, metric)
+    cloud = Cloud(array, metric, cols, source, None, count_duplicates(array), shift, scale, source_checksum)
+    return _finish(cloud)
+
+
+def _standardize(array, metric):
+    if metric.name not in ("euclidean", "manhattan", "chebyshev", "minkowski"):
+        raise InvalidDataError(
+            f"standardize=True rescales columns and is only meaningful for coordinate metrics "
+            f"(euclidean, manhattan, chebyshev, minkowski); got metric={metric.name!r}.", parameter="standardize")
+    shift = array.mean(axis=0)
+    scale = array.std(axis=0)
+    flat = np.flatnonzero(scale == 0)
+    if flat.size:
+        raise InvalidDataError(
+            f"Column {int(flat[0])} is constant, so it cannot be standardised (its spread is 0). Drop it first.",
+            parameter="standardize")
+    return (array - shift) / scale, shift, scale
+
+
+def _finish(cloud: Cloud) -> Cloud:
+    cloud.points.setflags(write=False)
+    if cloud.distance_matrix is not None:
+        cloud.distance_matrix.setflags(write=False)
+    if cloud.n_duplicates:
+        warnings.warn(
+            f"The cloud from {cloud.source} holds {cloud.n_duplicates} repeated point(s) out of "
+            f"{cloud.n_points}; they are kept and add nothing to the topology.", DuplicatePointsWarning,
+            stacklevel=3)
+    return cloud
