@@ -6,8 +6,10 @@ core
     Clouds and metrics, landmarks, filtrations, persistence diagrams, diagram distances.
 io
     Reading clouds from arrays, DataFrames and files.
-shapes
-    Samplers of shapes with known topology (for tests and demos).
+shapes, scenarios
+    Samplers of shapes with known topology; the invented demo scenarios.
+cli
+    The ``tdakit`` command line.
 
 ``import tdakit`` loads neither ipywidgets, matplotlib.pyplot nor dask.
 """
@@ -19,10 +21,12 @@ from tdakit.core import (
     Metric,
     compute_diagrams,
     densest_points,
+    diagram_distance,
     knn_density,
     knn_radius,
     landmarks_from_indices,
     select_landmarks,
+    witness_edge_values,
 )
 from tdakit.io import load_cloud
 
@@ -35,9 +39,11 @@ __all__ = [
     "Metric",
     "compute_diagrams",
     "densest_points",
+    "diagram_distance",
     "knn_density",
     "knn_radius",
     "landmarks_from_indices",
     "load_cloud",
     "select_landmarks",
+    "witness_edge_values",
 ]

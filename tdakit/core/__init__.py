@@ -7,9 +7,11 @@ numpy, scipy, gudhi, scikit-learn and joblib (persim and POT lazily).
 from tdakit.core.cloud import Cloud
 from tdakit.core.density import densest_points, knn_density, knn_radius
 from tdakit.core.diagrams import Diagrams
-from tdakit.core.filtrations import compute_diagrams, stability_constant
+from tdakit.core.distances import diagram_distance
+from tdakit.core.filtrations import compute_diagrams, stability_constant, witness_edge_values
 from tdakit.core.landmarks import Landmarks, landmarks_from_indices, select_landmarks
 from tdakit.core.metrics import METRICS, Metric
 
-__all__ = ["Cloud", "Diagrams", "Landmarks", "METRICS", "Metric", "compute_diagrams", "densest_points",
-           "knn_density", "knn_radius", "landmarks_from_indices", "select_landmarks", "stability_constant"]
+__all__ = ["Cloud", "Diagrams", "Landmarks", "METRICS", "Metric", "compute_diagrams", "densest_points", "diagram_distance",
+           "knn_density", "knn_radius", "landmarks_from_indices", "select_landmarks", "stability_constant",
+           "witness_edge_values"]

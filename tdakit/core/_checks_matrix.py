@@ -36,5 +36,5 @@ def _first_violation(mask, array, name, what):
     if mask.any():
         i, j = np.argwhere(mask)[0]
         raise InvalidDataError(
-            f"Input '{name}' is not a valid distance matrix: entry [{i}, {j}] = {array[i, j]!r} {what}.",
+            f"Input '{name}' is not a valid distance matrix: entry [{i}, {j}] = {float(array[i, j])!r} {what}.",
             parameter=name)

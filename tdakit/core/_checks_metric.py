@@ -43,7 +43,7 @@ def _check_in_box(points, metric, name):
         row, col = np.argwhere(outside)[0]
         raise InvalidDataError(
             f"Input '{name}' has a point outside the periodic box at row {row}: column {col} is "
-            f"{points[row, col]!r}, expected within [0, {box[col]!r}]. tdakit does not wrap points "
+            f"{float(points[row, col])!r}, expected within [0, {float(box[col])!r}]. tdakit does not wrap points "
             f"silently; apply `np.mod(points, box)` yourself if wrapping is intended.", parameter=name)
     return tuple(float(b) for b in box)
 
@@ -58,5 +58,5 @@ def _check_sky(points, name):
     if bad.size:
         row = int(bad[0])
         raise InvalidDataError(
-            f"Input '{name}' has latitude {lat[row]!r} at row {row}; latitudes must lie in [-90, 90] degrees "
+            f"Input '{name}' has latitude {float(lat[row])!r} at row {row}; latitudes must lie in [-90, 90] degrees "
             f"(column 1 is the latitude).", parameter=name)

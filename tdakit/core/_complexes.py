@@ -32,7 +32,8 @@ def flag_tree(matrix: NDArray[np.float64], cap: float, max_dim: int, *, collapse
         check_budget(estimate, budget, what=what, advice=_ADVICE + " Edge collapse is applied before expansion "
                      f"and often shrinks the complex a hundredfold, but with over {COLLAPSE_RECHECK_EDGES:,} edges "
                      "tdakit does not collapse just to find out.")
-    tree = gudhi.SimplexTree.create_from_array(matrix, max_filtration=cap)
+    # inf marks a missing edge: never insert it, even when the filtration has no cap
+    tree = gudhi.SimplexTree.create_from_array(matrix, max_filtration=min(cap, np.finfo(np.float64).max))
     if collapse and max_dim >= 1:
         _collapse(tree)
         if over:

@@ -14,7 +14,7 @@ from tdakit.core.landmarks import Landmarks, landmarks_from_indices
 from tdakit.core.preflight import default_memory_budget
 from tdakit.errors import FewWitnessesWarning, MemoryBudgetError
 
-__all__ = ["compute_diagrams", "FILTRATIONS", "WITNESS_KINDS", "stability_constant"]
+__all__ = ["compute_diagrams", "FILTRATIONS", "WITNESS_KINDS", "stability_constant", "witness_edge_values"]
 
 FILTRATIONS = ("alpha", "dtm", "rips", "witness")
 WITNESS_KINDS = ("lazy", "strong", "weak")
@@ -255,3 +255,28 @@ def _provenance(cloud, marks, opts, tree) -> dict:
     if opts["sparse"] is not None:
         params.update(sparse_seed=opts.get("sparse_seed"), sparse_log_bound=-float(np.log1p(-opts["sparse"])))
     return params
+
+
+def witness_edge_values(
+    cloud: Cloud, landmarks: Landmarks | np.ndarray, *, nu: int = 1, max_scale: float | None = None
+) -> np.ndarray:
+    """Lazy witness edge values between the landmarks, every cloud point a witness.
+
+    Returns the (n_landmarks, n_landmarks) matrix e(a, b) = max(0, min_w [max(d(a, w),
+    d(b, w)) - m_nu(w)]), with m_nu(w) the distance from w to its nu-th nearest
+    landmark (0 for nu = 0); zero diagonal; inf above ``max_scale``. A simplex of the
+    lazy witness complex enters at the largest value among its edges.
+
+    References
+    ----------
+    .. [1] V. de Silva, G. Carlsson, "Topological estimation using witness complexes",
+       Symposium on Point-Based Graphics (2004).
+    """
+    fn = "witness_edge_values"
+    if not isinstance(cloud, Cloud):
+        raise fail("cloud", fn, "a Cloud from tdakit.load_cloud", cloud)
+    marks = _as_landmarks(cloud, landmarks, "witness")
+    nu = check_int(nu, "nu", fn, low=0, high=min(2, marks.n_landmarks))
+    cap = np.inf if max_scale is None else check_float(max_scale, "max_scale", fn, low=0.0, low_open=True,
+                                                       allow_inf=True)
+    return _witness.lazy_witness_edges(cloud, marks.indices, nu, cap)

@@ -69,7 +69,7 @@ def estimate_flag_complex(
     estimate of the number of j-simplices.
     """
     n = matrix.shape[0]
-    adjacency = matrix <= cap
+    adjacency = (matrix <= cap) & np.isfinite(matrix)  # inf marks a missing edge
     np.fill_diagonal(adjacency, False)
     upper = np.triu(adjacency, k=1)
     degree = upper.sum(axis=1).astype(np.float64)

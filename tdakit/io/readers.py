@@ -100,7 +100,10 @@ def load_cloud(
         table, names, checksum = _read_file(path, delimiter=delimiter, header=header, key=key)
         label = str(path)
     elif _is_dataframe(source):
-        table, names = _from_dataframe(source), tuple(str(c) for c in source.columns)
+        names = tuple(str(c) for c in source.columns)
+        positions = _positions(columns, names, len(names))
+        source, columns = source.iloc[:, positions], None
+        table, names = _from_dataframe(source), tuple(names[i] for i in positions)
         label = "DataFrame"
     else:
         _no_file_options(delimiter, header, key)
@@ -130,18 +133,25 @@ def _from_dataframe(frame):
     return frame.to_numpy(dtype=np.float64) if len(kinds) else np.zeros((len(frame), 0))
 
 
-def _select_columns(table, names, columns):
+def _positions(columns, names, n_columns) -> list[int]:
+    """Column positions for ``columns`` (names or ints); all columns when None."""
     if columns is None:
-        return table, names
+        return list(range(n_columns))
     if isinstance(columns, (str, int)) or not hasattr(columns, "__iter__"):
         raise fail("columns", "load_cloud", "a list of column names or positions", columns)
     wanted = list(columns)
     if not wanted:
         raise fail("columns", "load_cloud", "a non-empty list of column names or positions", columns)
-    array = np.asarray(table) if not _is_dataframe(table) else table.to_numpy()
+    return [_column_position(c, names, n_columns) for c in wanted]
+
+
+def _select_columns(table, names, columns):
+    if columns is None:
+        return table, names
+    array = np.asarray(table)
     if array.ndim != 2:
         raise fail("columns", "load_cloud", "None for input that is not a 2-D table", columns)
-    positions = [_column_position(c, names, array.shape[1]) for c in wanted]
+    positions = _positions(columns, names, array.shape[1])
     chosen = tuple(names[i] for i in positions) if names else tuple(f"x{i}" for i in positions)
     return array[:, positions], chosen
 
