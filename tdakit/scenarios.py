@@ -47,7 +47,8 @@ def marrowfield_halos(n_points: int = 12_000, *, rng=2026) -> tuple[NDArray[np.f
         (np.cos(np.arange(6) * np.pi / 3), np.sin(np.arange(6) * np.pi / 3), 0.15 * np.sin(np.arange(6) * 2.0)))
     start = generator.integers(0, 6, n_fil)
     t = generator.uniform(0, 1, (n_fil, 1))
-    filaments = nodes[start] + t * (nodes[(start + 1) % 6] - nodes[start]) + generator.normal(scale=1.2, size=(n_fil, 3))
+    filaments = nodes[start] + t * (nodes[(start + 1) % 6] - nodes[start])
+    filaments += generator.normal(scale=1.2, size=(n_fil, 3))
     clusters = nodes[generator.integers(0, 6, n_node)] + generator.normal(scale=1.5, size=(n_node, 3))
     positions = np.mod(np.vstack((background, filaments, clusters)), MARROWFIELD_BOX)
     masses = np.concatenate((generator.lognormal(0.0, 0.5, background.shape[0] + n_fil),

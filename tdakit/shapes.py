@@ -49,7 +49,8 @@ def sphere(n_points: int, *, dim: int = 2, radius: float = 1.0, noise: float = 0
     return add_noise(points, noise, rng=generator)
 
 
-def torus(n_points: int, *, major: float = 2.0, minor: float = 1.0, noise: float = 0.0, rng=None) -> NDArray[np.float64]:
+def torus(n_points: int, *, major: float = 2.0, minor: float = 1.0, noise: float = 0.0,
+          rng=None) -> NDArray[np.float64]:
     """Points on a torus of revolution in R^3, uniform in area (rejection on the tube angle)."""
     n_points = _n(n_points, "torus")
     major = check_float(major, "major", "torus", low=0.0, low_open=True)

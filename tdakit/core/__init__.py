@@ -12,6 +12,8 @@ from tdakit.core.filtrations import compute_diagrams, stability_constant, witnes
 from tdakit.core.landmarks import Landmarks, landmarks_from_indices, select_landmarks
 from tdakit.core.metrics import METRICS, Metric
 
-__all__ = ["Cloud", "Diagrams", "Landmarks", "METRICS", "Metric", "compute_diagrams", "densest_points", "diagram_distance",
-           "knn_density", "knn_radius", "landmarks_from_indices", "select_landmarks", "stability_constant",
-           "witness_edge_values"]
+__all__ = [
+    "Cloud", "Diagrams", "Landmarks", "METRICS", "Metric", "compute_diagrams", "densest_points", "diagram_distance",
+    "knn_density", "knn_radius", "landmarks_from_indices", "select_landmarks", "stability_constant",
+    "witness_edge_values",
+]
