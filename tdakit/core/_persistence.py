@@ -32,9 +32,13 @@ def assemble(per_dim, vertex_ids: NDArray[np.intp], *, squared: bool, cap_reache
         values = np.array([(b, d) for b, d, _, _ in rows], dtype=np.float64).reshape(-1, 2)
         bverts = _vertex_table([r[2] for r in rows], dim + 1, vertex_ids)
         dverts = _vertex_table([r[3] for r in rows], dim + 2, vertex_ids)
-        if squared:  # sqrt can merge values that differed only by rounding: drop those pairs
+        if squared:
+            # gudhi's squared values (alpha 'safe' precision, witness relaxations) carry rounding of
+            # ~1e-16 relative; co-spherical points then give pairs of "persistence" 1e-16 that are
+            # rounding, not topology. Drop pairs shorter than 1e-12 of their death value.
             values = np.sqrt(np.maximum(values, 0.0))
-            alive = values[:, 1] > values[:, 0]
+            death = values[:, 1]
+            alive = np.isinf(death) | (death - values[:, 0] > 1e-12 * np.abs(death))
             values, bverts, dverts = values[alive], bverts[alive], dverts[alive]
         order = np.lexsort((values[:, 0], -(values[:, 1] - values[:, 0])))
         values, bverts, dverts = values[order], bverts[order], dverts[order]

@@ -78,6 +78,11 @@ def compute_diagrams(
         Prime p of the coefficients Z/p (gudhi's own default is 11; tdakit uses 2).
     collapse : bool, default=True
         Edge-collapse flag complexes before expansion (exact: same diagrams).
+        Collapse raises some edges' filtration values, so the located birth and
+        death simplices are then simplices of the collapsed complex: their vertices
+        lie on the feature, but their size need not equal the birth or death.
+        ``params["location"]`` says which; pass ``collapse=False`` for the exact
+        birth and death simplices.
     sparse : float, optional
         Rips only: build the sparse Rips approximation with this epsilon in (0, 1);
         log-scale diagrams are then within -log(1 - epsilon) in bottleneck distance.
@@ -240,6 +245,13 @@ def _units(cloud, opts) -> str:
     return f"{base}; {opts['witness']} witness relaxation sqrt(alpha^2)"
 
 
+def _location(opts) -> str:
+    flag = opts["filtration"] in ("rips", "dtm") or (opts["filtration"] == "witness" and opts["witness"] == "lazy")
+    if flag and opts["collapse"] and opts["sparse"] is None and opts["max_dim"] >= 1:
+        return "collapsed complex: vertices lie on the feature; simplex sizes may differ from birth and death"
+    return "exact birth and death simplices"
+
+
 def _provenance(cloud, marks, opts, tree) -> dict:
     constant = stability_constant(opts["filtration"]) if opts["sparse"] is None else None
     bound = constant * marks.coverage_radius if constant is not None and cloud.metric.is_metric else None
@@ -247,7 +259,7 @@ def _provenance(cloud, marks, opts, tree) -> dict:
     params.update(
         filtration=opts["filtration"], n_landmarks=marks.n_landmarks, landmark_method=marks.method,
         coverage_radius=marks.coverage_radius, landmark_bound=bound, n_simplices=int(tree.num_simplices()),
-        metric=cloud.metric.to_dict(), max_scale=opts["cap"])
+        metric=cloud.metric.to_dict(), max_scale=opts["cap"], location=_location(opts))
     if opts["filtration"] == "witness":
         params.update(witness=opts["witness"], witness_nu=opts["nu"] if opts["witness"] == "lazy" else None)
     if opts["filtration"] == "dtm":

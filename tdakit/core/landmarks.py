@@ -68,7 +68,7 @@ def select_landmarks(
     rng: int | np.random.Generator | None = None,
     start: int | None = None,
     density_power: float = 1.0,
-    density_neighbors: int = 15,
+    density_neighbors: int | None = None,
     keep_fraction: float = 0.9,
 ) -> Landmarks:
     r"""Choose ``n_landmarks`` points of the cloud to build complexes on.
@@ -95,8 +95,9 @@ def select_landmarks(
         (from the kept points for ``"core_maxmin"``).
     density_power : float, default=1.0
         Exponent of the density weight (``"density"`` only).
-    density_neighbors : int, default=15
-        k of the kNN density (``"density"``, ``"core_maxmin"``).
+    density_neighbors : int, optional
+        k of the kNN density (``"density"``, ``"core_maxmin"``); default
+        ``min(15, n_points - 1)``.
     keep_fraction : float, default=0.9
         Fraction of densest points kept by ``"core_maxmin"``.
 
@@ -130,6 +131,8 @@ def select_landmarks(
     if start is not None:
         start = check_int(start, "start", _FN, low=0, high=cloud.n_points - 1, note="a point index")
     params = {"start": start, "seed": _seed_of(rng)}
+    if density_neighbors is None:
+        density_neighbors = min(15, cloud.n_points - 1)
     if method == "maxmin":
         indices = _maxmin(cloud, n_landmarks, np.arange(cloud.n_points), start, generator)
     elif method == "random":
