@@ -110,7 +110,8 @@ def test_densest_primes_on_a_line():
     # javaPlex tutorial, appendix A: the 500 primes <= 3571 on a line; k = 1 and k = 50 densest ten.
     assert PRIMES.size == 500
     cloud = tdakit.load_cloud(PRIMES[:, None].astype(float))
-    np.testing.assert_array_equal(PRIMES[tdakit.densest_points(cloud, 10 / 500, k=1)], [2, 3, 5, 7, 11, 13, 17, 19, 29, 31])
+    np.testing.assert_array_equal(PRIMES[tdakit.densest_points(cloud, 10 / 500, k=1)],
+                                  [2, 3, 5, 7, 11, 13, 17, 19, 29, 31])
     np.testing.assert_array_equal(PRIMES[tdakit.densest_points(cloud, 10 / 500, k=50)],
                                   [113, 127, 109, 131, 107, 137, 139, 157, 149, 151])
 
