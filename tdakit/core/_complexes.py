@@ -12,7 +12,13 @@ from numpy.typing import NDArray
 
 from tdakit.core import _geometry, _witness
 from tdakit.core.cloud import Cloud
-from tdakit.core.preflight import SizeEstimate, check_budget, estimate_flag_complex
+from tdakit.core.preflight import (
+    SizeEstimate,
+    alpha_estimate,
+    check_budget,
+    check_dense_matrix,
+    estimate_flag_complex,
+)
 
 # Above this many edges, collapsing just to re-check the budget takes longer than a user
 # expects from a refusal (measured: 0.5 M edges ~4 s, 4.5 M edges ~100 s, gudhi 3.13).
@@ -66,6 +72,7 @@ def _collapsed_matrix(tree, n):
 
 
 def rips_tree(cloud: Cloud, landmarks, max_dim, cap, *, collapse, budget):
+    check_dense_matrix(landmarks.size, budget)
     matrix = _geometry.pairwise(cloud, landmarks, landmarks)
     return flag_tree(matrix, cap, max_dim, collapse=collapse, budget=budget, what="Rips complex"), False
 
@@ -74,6 +81,7 @@ def sparse_rips_tree(cloud: Cloud, landmarks, max_dim, cap, *, sparse, seed, bud
     import gudhi
     import gudhi.random
 
+    check_dense_matrix(landmarks.size, budget)
     matrix = _geometry.pairwise(cloud, landmarks, landmarks)
     check_budget(estimate_flag_complex(matrix, cap, 1), budget, what="sparse Rips input graph", advice=_ADVICE)
     gudhi.random.set_seed(seed)
@@ -88,6 +96,7 @@ def dtm_weights(cloud: Cloud, landmarks, k: int) -> NDArray[np.float64]:
 
 
 def dtm_tree(cloud: Cloud, landmarks, max_dim, cap, *, k, collapse, budget):
+    check_dense_matrix(landmarks.size, budget)
     weights = dtm_weights(cloud, landmarks, k)
     matrix = _geometry.pairwise(cloud, landmarks, landmarks) + weights[:, None] + weights[None, :]
     matrix = np.maximum(matrix, 2 * np.maximum(weights[:, None], weights[None, :]))
@@ -96,6 +105,7 @@ def dtm_tree(cloud: Cloud, landmarks, max_dim, cap, *, k, collapse, budget):
 
 
 def lazy_witness_tree(cloud: Cloud, landmarks, max_dim, cap, *, nu, collapse, budget):
+    check_dense_matrix(landmarks.size, budget)
     matrix = _witness.lazy_witness_edges(cloud, landmarks, nu, cap)
     return flag_tree(matrix, cap, max_dim, collapse=collapse, budget=budget, what="lazy witness complex"), False
 
@@ -110,8 +120,11 @@ def gudhi_witness_tree(cloud: Cloud, landmarks, max_dim, cap, *, strong):
     return tree, True
 
 
-def alpha_tree(cloud: Cloud, landmarks, max_dim, cap):
+def alpha_tree(cloud: Cloud, landmarks, max_dim, cap, *, budget):
     import gudhi
+
+    check_budget(alpha_estimate(landmarks.size, cloud.n_dims), budget, what="alpha complex",
+                 advice="Use fewer points (landmarks) or a Rips or witness filtration.")
 
     complex_ = gudhi.AlphaComplex(points=np.asarray(cloud.points[landmarks]))
     return complex_.create_simplex_tree(max_alpha_square=cap * cap), True

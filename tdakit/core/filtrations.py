@@ -205,7 +205,7 @@ def _build(cloud, marks, opts, rng):
         return _complexes.dtm_tree(cloud, idx, dim, cap, k=opts["dtm_neighbors"], collapse=opts["collapse"],
                                    budget=budget)
     if kind == "alpha":
-        return _complexes.alpha_tree(cloud, idx, dim, cap)
+        return _complexes.alpha_tree(cloud, idx, dim, cap, budget=budget)
     if opts["witness"] == "lazy":
         _check_witness_work(cloud, idx, opts)
         return _complexes.lazy_witness_tree(cloud, idx, dim, cap, nu=opts["nu"], collapse=opts["collapse"],

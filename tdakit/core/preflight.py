@@ -11,13 +11,16 @@ from scipy.special import gammaln
 from tdakit.errors import MemoryBudgetError
 
 __all__ = ["SizeEstimate", "estimate_flag_complex", "default_memory_budget", "check_budget",
-           "BYTES_PER_SIMPLEX"]
+           "check_dense_matrix", "alpha_estimate", "BYTES_PER_SIMPLEX"]
 
 # Peak bytes per simplex while gudhi computes persistence: 64-72 measured with gudhi 3.13
 # (build ~35-45 B, persistence peak 64-72 B per simplex).
 BYTES_PER_SIMPLEX = 72
 SECONDS_PER_SIMPLEX = 2.5e-6  # measured: ~2-3 us per simplex for persistence with gudhi 3.13
 _SAMPLES = 4000
+# Simplices per point of a full alpha complex of random points, by dimension (measured with gudhi 3.13 on
+# uniform and Gaussian clouds: 6.0, 28.7-28.9, 176-179, 1081-1086).
+ALPHA_SIMPLICES_PER_POINT = {1: 2.0, 2: 6.0, 3: 29.0, 4: 180.0, 5: 1090.0}
 
 
 @dataclass(frozen=True)
@@ -101,6 +104,22 @@ def _estimate_cliques(adjacency, upper, degree, j, rng):
     fraction = hits / _SAMPLES
     total = float(np.exp(log_total))
     return total * fraction, total * np.sqrt(max(fraction * (1 - fraction), 1.0 / _SAMPLES) / _SAMPLES)
+
+
+def check_dense_matrix(n_vertices: int, budget: float) -> None:
+    """Refuse a dense vertex-by-vertex matrix (8-byte values plus two boolean masks) beyond the budget."""
+    needed = float(n_vertices) ** 2 * 10
+    if needed > budget:
+        raise MemoryBudgetError(
+            f"Refused before building: {n_vertices} vertices need a {n_vertices} x {n_vertices} distance matrix of "
+            f"about {needed / 2**30:.3g} GiB, over the memory budget of {budget / 2**30:.3g} GiB. Choose fewer "
+            f"landmarks with select_landmarks (a few hundred to a few thousand is usual), or raise 'memory_budget'.",
+            parameter="landmarks")
+
+
+def alpha_estimate(n_points: int, n_dims: int) -> SizeEstimate:
+    """Expected size of a full alpha complex (measured simplices per point; exact counts vary with the data)."""
+    return SizeEstimate((n_points * ALPHA_SIMPLICES_PER_POINT[n_dims],), (0.0,))
 
 
 def check_budget(estimate: SizeEstimate, budget: float, *, what: str, advice: str) -> None:

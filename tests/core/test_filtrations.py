@@ -254,3 +254,12 @@ def test_preflight_honours_an_explicit_budget():
     cloud = tdakit.load_cloud(np.random.default_rng(0).normal(size=(200, 3)))
     with pytest.raises(MemoryBudgetError, match="memory budget"):
         tdakit.compute_diagrams(cloud, max_dim=2, memory_budget=10_000, collapse=False)
+
+
+def test_preflight_refuses_a_dense_matrix_and_an_alpha_complex_over_budget():
+    cloud = tdakit.load_cloud(np.random.default_rng(0).normal(size=(2000, 3)))
+    with pytest.raises(MemoryBudgetError, match="2000 x 2000 distance matrix") as info:
+        tdakit.compute_diagrams(cloud, memory_budget=1e6)
+    assert info.value.parameter == "landmarks"
+    with pytest.raises(MemoryBudgetError, match="alpha complex"):
+        tdakit.compute_diagrams(cloud, filtration="alpha", memory_budget=1e6)
