@@ -15,17 +15,23 @@ cli
 """
 
 from tdakit.core import (
+    Band,
     Cloud,
     Diagrams,
     Landmarks,
     Metric,
+    PermutationResult,
     compute_diagrams,
+    confidence_band,
     densest_points,
     diagram_distance,
     knn_density,
     knn_radius,
     landmarks_from_indices,
+    permutation_test,
+    persistence_landscape,
     select_landmarks,
+    significance_table,
     witness_edge_values,
 )
 from tdakit.io import load_cloud
@@ -33,17 +39,23 @@ from tdakit.io import load_cloud
 __version__ = "0.1.0"
 
 __all__ = [
+    "Band",
     "Cloud",
     "Diagrams",
     "Landmarks",
     "Metric",
+    "PermutationResult",
     "compute_diagrams",
+    "confidence_band",
     "densest_points",
     "diagram_distance",
     "knn_density",
     "knn_radius",
     "landmarks_from_indices",
+    "permutation_test",
+    "persistence_landscape",
     "load_cloud",
     "select_landmarks",
+    "significance_table",
     "witness_edge_values",
 ]

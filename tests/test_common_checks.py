@@ -185,3 +185,53 @@ def test_stochastic_functions_repeat_for_the_same_rng(method, global_seed):
     again = tdakit.select_landmarks(cloud(), 8, method=method, rng=global_seed)
     np.testing.assert_array_equal(first.indices, again.indices)
     np.testing.assert_array_equal(shapes.torus(50, rng=global_seed), shapes.torus(50, rng=global_seed))
+
+
+def _band_cases():
+    return [
+        (dict(level=1.0), "level"), (dict(level=0.0), "level"), (dict(level=1.5), "level"),
+        (dict(n_boot=0), "n_boot"), (dict(method="jackknife"), "method"),
+        (dict(method="subsample", subsample_size=30), "subsample_size"),
+        (dict(method="subsample", subsample_size=0), "subsample_size"),
+        (dict(method="subsample", filtration="witness", landmarks=tdakit.select_landmarks(cloud(), 3)), "method"),
+        (dict(landmarks=np.arange(3)), "landmarks"), (dict(n_jobs=0), "n_jobs"), (dict(executor=object()), "executor"),
+        (dict(rng=-3), "rng"), (dict(diagram_options={"max_dim": 2}), "diagram_options"),
+        (dict(method="density", bandwidth=-1.0), "bandwidth"),
+        (dict(method="landscape", n_subsamples=1), "n_subsamples"),
+    ]
+
+
+@pytest.mark.parametrize(("kwargs", "parameter"), _band_cases())
+def test_confidence_band_bad_input(kwargs, parameter):
+    with pytest.raises(TdakitError) as info:
+        tdakit.confidence_band(cloud(), **{"n_boot": 5, **kwargs})
+    assert info.value.parameter == parameter
+
+
+def test_density_band_refuses_high_dimensional_clouds():
+    data = tdakit.load_cloud(np.random.default_rng(1).normal(size=(40, 5)))
+    with pytest.raises(TdakitError, match="1 to 3") as info:
+        tdakit.confidence_band(data, method="density", n_boot=5)
+    assert info.value.parameter == "method"
+
+
+def test_band_significance_rejects_non_diagrams():
+    band = tdakit.confidence_band(cloud(), n_boot=5, rng=0)
+    with pytest.raises(TdakitError) as info:
+        band.significant(np.zeros((3, 2)), 1)
+    assert info.value.parameter == "diagrams"
+    with pytest.raises(TdakitError) as info:
+        band.radius(5)
+    assert info.value.parameter == "k"
+
+
+@pytest.mark.parametrize(("kwargs", "parameter"), [
+    (dict(group_a=[[[0, 1]]], group_b=[[[0, 1]], [[0, 2]]]), "group_a"),
+    (dict(group_a=[[[0, 1]], [[0, 2]]], group_b=[[[0, 1]], [[1, 0]]]), "group_b"),
+    (dict(group_a=[[[0, 1]], [[0, 2]]], group_b=[[[0, 1]], [[0, 2]]], kind="energy"), "kind"),
+    (dict(group_a=[[[0, 1]], [[0, 2]]], group_b=[[[0, 1]], [[0, 2]]], power=0), "power"),
+])
+def test_permutation_test_bad_input(kwargs, parameter):
+    with pytest.raises(TdakitError) as info:
+        tdakit.permutation_test(kwargs.pop("group_a"), kwargs.pop("group_b"), **kwargs)
+    assert info.value.parameter == parameter

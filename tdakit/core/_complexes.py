@@ -30,7 +30,7 @@ def flag_tree(matrix: NDArray[np.float64], cap: float, max_dim: int, *, collapse
     """Flag complex of ``matrix`` (diagonal = vertex values) up to dimension max_dim + 1, after a pre-flight."""
     import gudhi
 
-    estimate = estimate_flag_complex(matrix, cap, max_dim + 1)
+    estimate = estimate_flag_complex(matrix, cap, max_dim + 1, budget=budget)
     graph = SizeEstimate(estimate.counts[:2], estimate.errors[:2])
     check_budget(graph, budget, what=f"{what} graph", advice=_ADVICE)
     over = estimate.bytes > budget
@@ -44,19 +44,23 @@ def flag_tree(matrix: NDArray[np.float64], cap: float, max_dim: int, *, collapse
         _collapse(tree)
         if over:
             collapsed = _collapsed_matrix(tree, matrix.shape[0])
-            check_budget(estimate_flag_complex(collapsed, cap, max_dim + 1), budget,
+            check_budget(estimate_flag_complex(collapsed, cap, max_dim + 1, budget=budget), budget,
                          what=f"{what} after edge collapse", advice=_ADVICE)
     tree.expansion(max_dim + 1)
     return tree
 
 
 def _collapse(tree) -> None:
-    """Collapse edges until nothing changes (each pass is exact)."""
+    """Collapse edges while a pass still removes at least 5% of them (every pass is exact).
+
+    Measured with gudhi 3.13: on 300 Gaussian points in R^3 the passes remove 95%, 22%, 8%, 3% of
+    the edges; on a plane circle 9%, then 1.6% per pass at a third of the first pass's cost each.
+    """
     before = tree.num_simplices()
-    while True:
+    for _ in range(10):
         tree.collapse_edges()
         after = tree.num_simplices()
-        if after == before:
+        if after > 0.95 * before:
             return
         before = after
 

@@ -79,6 +79,16 @@ class Cloud:
         digest.update(np.ascontiguousarray(data).tobytes())
         return digest.hexdigest()
 
+    def subset(self, indices) -> Cloud:
+        """The points at ``indices`` (repeats allowed, e.g. a bootstrap sample) as a new cloud, same metric."""
+        indices = np.asarray(indices, dtype=np.intp)
+        if self.distance_matrix is not None:
+            matrix = self.distance_matrix[np.ix_(indices, indices)]
+            repeats = int(np.triu(matrix == 0.0, k=1).any(axis=0).sum())
+            return Cloud(np.zeros((indices.size, 0)), self.metric, (), f"subset of {self.source}", matrix, repeats)
+        points = self.points[indices]
+        return Cloud(points, self.metric, self.columns, f"subset of {self.source}", None, count_duplicates(points))
+
     def __repr__(self) -> str:
         return (f"Cloud(n_points={self.n_points}, n_dims={self.n_dims}, metric={self.metric.name!r}, "
                 f"source={self.source!r}, n_duplicates={self.n_duplicates})")

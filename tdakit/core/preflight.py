@@ -61,7 +61,7 @@ def _log_comb(n: NDArray[np.float64], k: int) -> NDArray[np.float64]:
 
 
 def estimate_flag_complex(
-    matrix: NDArray[np.float64], cap: float, max_simplex_dim: int, *, seed: int = 0
+    matrix: NDArray[np.float64], cap: float, max_simplex_dim: int, *, seed: int = 0, budget: float | None = None
 ) -> SizeEstimate:
     """Estimate the simplices of the flag complex of ``{(i, j): matrix[i, j] <= cap}``.
 
@@ -69,7 +69,8 @@ def estimate_flag_complex(
     upper neighbours of v. Drawing (v, j-subset) pairs uniformly from all
     candidates (v with weight C(s_v, j), then a uniform j-subset of its s_v upper
     neighbours) and counting the fraction that are cliques gives an unbiased
-    estimate of the number of j-simplices.
+    estimate of the number of j-simplices. With a ``budget``, sampling is skipped when the
+    exact upper bound sum_v C(s_v, j) already fits it (the counts are then that bound).
     """
     n = matrix.shape[0]
     adjacency = (matrix <= cap) & np.isfinite(matrix)  # inf marks a missing edge
@@ -77,6 +78,11 @@ def estimate_flag_complex(
     upper = np.triu(adjacency, k=1)
     degree = upper.sum(axis=1).astype(np.float64)
     counts, errors = [float(n), float(degree.sum())], [0.0, 0.0]
+    if budget is not None:
+        bounds = [float(np.exp(_log_comb(degree, j)).sum()) for j in range(2, max_simplex_dim + 1)]
+        bound = SizeEstimate(tuple(counts + bounds)[: max_simplex_dim + 1], (0.0,) * (max_simplex_dim + 1))
+        if bound.bytes <= budget:
+            return bound
     rng = np.random.default_rng(seed)
     for j in range(2, max_simplex_dim + 1):
         count, error = _estimate_cliques(adjacency, upper, degree, j, rng)
