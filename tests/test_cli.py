@@ -10,11 +10,11 @@ def run(*args, cwd):
 
 
 def test_demo_end_to_end(tmp_path):
-    result = run("demo", "--out", str(tmp_path / "out"), cwd=tmp_path)
+    result = run("demo", "--out", str(tmp_path / "out"), "--n-boot", "10", cwd=tmp_path)
     assert result.returncode == 0, result.stderr
-    assert "Longest-lived loops" in result.stdout
-    table = (tmp_path / "out" / "diagrams.csv").read_text().splitlines()
-    assert table[0] == "dimension,birth,death,persistence,alive_at_cutoff" and len(table) > 10
+    assert "Longest-lived loops" in result.stdout and "resampling heuristic" in result.stdout
+    table = (tmp_path / "out" / "features.csv").read_text().splitlines()
+    assert table[0].startswith("dimension,birth,death,persistence,status,significant,margin") and len(table) > 10
 
 
 @pytest.mark.parametrize("args", [["demo", "--landmarks", "0"], ["demo", "--landmarks", "999999"]])

@@ -20,11 +20,14 @@ def _parser() -> argparse.ArgumentParser:
     demo = commands.add_parser(
         "demo", help="analyse the bundled mock halo catalogue (Marrowfield simulation box)",
         description="Load the bundled mock catalogue, pick landmarks in its dense core, build a DTM-Rips "
-                    "filtration in the periodic box and print the longest-lived loops with their locations.")
+                    "filtration in the periodic box, draw a bootstrap noise band and print the longest-lived loops "
+                    "with their locations and whether they stand above the band.")
     demo.add_argument("--landmarks", type=int, default=200, help="number of landmarks (default 200)")
     demo.add_argument("--out", type=Path, default=Path("tdakit-demo"),
-                      help="folder for the diagram table (default ./tdakit-demo)")
+                      help="folder for the feature table (default ./tdakit-demo)")
     demo.add_argument("--seed", type=int, default=2026, help="random seed (default 2026)")
+    demo.add_argument("--n-boot", type=int, default=40,
+                      help="bootstrap replicates behind the noise band (default 40)")
     return parser
 
 
