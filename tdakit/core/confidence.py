@@ -6,7 +6,7 @@ import warnings
 
 import numpy as np
 
-from tdakit._validation import check_choice, check_float, check_int, fail
+from tdakit._validation import check_bool, check_choice, check_float, check_int, fail
 from tdakit.core import _geometry, kde
 from tdakit.core.bands import Band
 from tdakit.core.cloud import Cloud
@@ -155,7 +155,7 @@ def _check(cloud, landmarks, filtration, method, level, n_boot, max_dim, diagram
             "max_dim": check_int(max_dim, "max_dim", _FN, low=0, high=8),
             "n_subsamples": check_int(n_subsamples, "n_subsamples", _FN, low=2, high=10**6),
             "n_levels": check_int(n_levels, "n_levels", _FN, low=1, high=100),
-            "account": bool(account), "landmarks": landmarks}
+            "account": check_bool(account, "account_for_landmarks", _FN), "landmarks": landmarks}
     if filtration is not None:
         check_choice(filtration, "filtration", _FN, FILTRATIONS)
     opts["filtration"] = filtration or "rips"

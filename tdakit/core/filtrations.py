@@ -12,7 +12,7 @@ from tdakit.core.cloud import Cloud
 from tdakit.core.diagrams import Diagrams
 from tdakit.core.landmarks import Landmarks, landmarks_from_indices
 from tdakit.core.preflight import default_memory_budget
-from tdakit.errors import FewWitnessesWarning, MemoryBudgetError
+from tdakit.errors import FewWitnessesWarning, MemoryBudgetError, TdakitError
 
 __all__ = ["compute_diagrams", "FILTRATIONS", "WITNESS_KINDS", "stability_constant", "witness_edge_values"]
 
@@ -174,7 +174,7 @@ def _as_landmarks(cloud, landmarks, filtration) -> Landmarks:
         return landmarks
     try:
         return landmarks_from_indices(cloud, landmarks)
-    except Exception as exc:  # re-worded with this function's name
+    except TdakitError as exc:  # re-worded with this function's name
         raise fail("landmarks", _FN, f"a Landmarks object or indices into the cloud ({exc})", landmarks) from None
 
 

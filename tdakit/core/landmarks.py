@@ -9,6 +9,7 @@ from numpy.typing import NDArray
 
 from tdakit._validation import check_choice, check_float, check_int, check_rng, fail
 from tdakit.core import _geometry
+from tdakit.core._maxmin import compiled_maxmin
 from tdakit.core.cloud import Cloud
 from tdakit.core.density import densest_points, knn_radius
 from tdakit.errors import InvalidDataError, InvalidParameterError
@@ -134,7 +135,9 @@ def select_landmarks(
     if density_neighbors is None:
         density_neighbors = min(15, cloud.n_points - 1)
     if method == "maxmin":
-        indices = _maxmin(cloud, n_landmarks, np.arange(cloud.n_points), start, generator)
+        indices, cover = _maxmin(cloud, n_landmarks, np.arange(cloud.n_points), start, generator)
+        if cover is not None:  # the compiled kernel already knows every point's nearest landmark
+            return _wrap(indices, cover[0], _geometry.to_metric(cloud, cover[1]), method, params)
     elif method == "random":
         indices = np.sort(generator.choice(cloud.n_points, size=n_landmarks, replace=False))
     elif method == "density":
@@ -157,6 +160,10 @@ def landmarks_from_indices(cloud: Cloud, indices, *, method: str = "given", para
     nearest, dist = _geometry.nearest_among(cloud, indices)
     dist[indices] = 0.0
     nearest[indices] = np.arange(indices.size)
+    return _wrap(indices, nearest, dist, method, params)
+
+
+def _wrap(indices, nearest, dist, method, params) -> Landmarks:
     for array in (indices, nearest, dist):
         array.setflags(write=False)
     return Landmarks(indices, float(dist.max()), nearest, dist, method, dict(params or {}))
@@ -174,20 +181,35 @@ def _check_distinct(cloud: Cloud, n_landmarks: int) -> None:
             f"repeats). Got {n_landmarks} instead.", parameter="n_landmarks")
 
 
-def _maxmin(cloud, n_landmarks, rows, start, generator) -> NDArray[np.intp]:
-    """Sequential farthest-point selection among ``rows`` (cloud indices); returns cloud indices."""
+def _maxmin(cloud, n_landmarks, rows, start, generator):
+    """Sequential farthest-point selection among ``rows``.
+
+    Returns the cloud indices, and (nearest, working distance) for every row when the compiled
+    kernel ran (None otherwise).
+    """
     first = int(rows[generator.integers(rows.size)]) if start is None else start
+    compiled = compiled_maxmin(cloud, n_landmarks, rows, first)
+    # Without numba, or for a given matrix (which need not obey the triangle inequality): stream.
+    chosen = reference_maxmin(cloud, n_landmarks, rows, first) if compiled is None else compiled[0].tolist()
+    if len(chosen) < n_landmarks:
+        raise InvalidParameterError(
+            f"The 'n_landmarks' parameter of {_FN} must be at most the number of distinct points among "
+            f"the candidates, {len(chosen)}. Got {n_landmarks} instead.", parameter="n_landmarks")
+    cover = None if compiled is None else (compiled[1].astype(np.intp), compiled[2])
+    return np.asarray(chosen, dtype=np.intp), cover
+
+
+def reference_maxmin(cloud, n_landmarks, rows, first) -> list[int]:
+    """The plain maxmin loop: stream every candidate once per landmark (stops at the distinct points)."""
     nearest_dist = np.full(rows.size, np.inf)
     chosen = [first]
     for _ in range(1, n_landmarks):
         np.minimum(nearest_dist, _geometry.working_to_point(cloud, chosen[-1], rows), out=nearest_dist)
         best = int(np.argmax(nearest_dist))
         if nearest_dist[best] == 0.0:
-            raise InvalidParameterError(
-                f"The 'n_landmarks' parameter of {_FN} must be at most the number of distinct points among "
-                f"the candidates, {len(chosen)}. Got {n_landmarks} instead.", parameter="n_landmarks")
+            break
         chosen.append(int(rows[best]))
-    return np.asarray(chosen, dtype=np.intp)
+    return chosen
 
 
 def _positive_radius(cloud, k):
@@ -218,4 +240,4 @@ def _core_maxmin(cloud, n_landmarks, keep_fraction, neighbors, start, generator,
     if core.size < n_landmarks:
         raise fail("n_landmarks", _FN, f"at most the {core.size} kept points (keep_fraction={keep_fraction})",
                    n_landmarks)
-    return _maxmin(cloud, n_landmarks, core, start, generator)
+    return _maxmin(cloud, n_landmarks, core, start, generator)[0]

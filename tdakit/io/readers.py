@@ -229,7 +229,7 @@ def _read_text(path: Path, *, delimiter, header):
         header = check_bool(header, "header", "load_cloud")
     sep = r"\s+" if delimiter is None else delimiter
     frame = pd.read_csv(path, sep=sep, header=0 if header else None, comment="#", skip_blank_lines=True,
-                        dtype=str, engine="c" if delimiter is not None else "python", keep_default_na=False)
+                        dtype=str, engine="c", keep_default_na=False)
     names = tuple(str(c).strip() for c in frame.columns) if header else None
     return _text_to_numbers(frame, path, header, names), names
 

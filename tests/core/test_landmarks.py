@@ -144,3 +144,26 @@ def test_core_maxmin_skips_outliers_that_maxmin_picks_first():
     core = tdakit.select_landmarks(cloud, 10, method="core_maxmin", keep_fraction=0.95, rng=0)
     assert np.isin([400, 401, 402], plain.indices).all()
     assert not np.isin([400, 401, 402], core.indices).any()
+
+
+@pytest.mark.parametrize("metric", ["euclidean", "chebyshev", "periodic"])
+def test_compiled_maxmin_breaks_ties_like_the_plain_loop(metric, monkeypatch):
+    # An integer grid has many exactly equal distances: both routes must pick the lowest index each time.
+    grid = np.array([(x, y) for x in range(12) for y in range(9)], dtype=float)
+    kwargs = {"box": [12.0, 9.0]} if metric == "periodic" else {}
+    cloud = tdakit.load_cloud(grid, metric=metric, **kwargs)
+    fast = tdakit.select_landmarks(cloud, 40, start=17)
+    from tdakit.core import _maxmin
+
+    monkeypatch.setattr(_maxmin, "_kernel", lambda: None)  # the numpy fallback streams every point
+    plain = tdakit.select_landmarks(cloud, 40, start=17)
+    np.testing.assert_array_equal(fast.indices, plain.indices)
+    assert fast.coverage_radius == plain.coverage_radius
+    np.testing.assert_allclose(fast.distance_to_nearest, plain.distance_to_nearest, atol=1e-12)
+
+
+def test_core_maxmin_may_start_outside_the_core():
+    points = np.vstack((shapes.circle(200, noise=0.02, rng=1), [[9.0, 9.0]]))
+    cloud = tdakit.load_cloud(points)
+    marks = tdakit.select_landmarks(cloud, 8, method="core_maxmin", start=200, rng=0)
+    assert marks.indices[0] == 200 and not np.isin(200, marks.indices[1:])
