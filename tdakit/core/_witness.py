@@ -53,8 +53,12 @@ def _scatter_block(edges, relative, cap):
     first, second = np.triu_indices(n_cand, 1)
     for s in range(0, relative.shape[0], chunk):
         part = relative[s:s + chunk]
-        order = np.argsort(part, axis=1)[:, :n_cand]
+        # only the n_cand smallest per witness can be under the cap: partition, then sort those
+        order = np.argpartition(part, n_cand - 1, axis=1)[:, :n_cand] if n_cand < part.shape[1] else \
+            np.broadcast_to(np.arange(part.shape[1]), part.shape)
         values = np.take_along_axis(part, order, axis=1)
+        within = np.argsort(values, axis=1)
+        order, values = np.take_along_axis(order, within, axis=1), np.take_along_axis(values, within, axis=1)
         # For a witness with landmarks sorted by relative distance, the pair (i < j) costs values[j].
         pair_values = values[:, second]
         keep = pair_values <= cap
