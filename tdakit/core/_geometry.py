@@ -51,11 +51,6 @@ def working_to_point(cloud: Cloud, index: int, rows: NDArray[np.intp] | None = N
     return cloud.metric.working_to_point(target, work[index])
 
 
-def to_working(cloud: Cloud, value):
-    """Metric value(s) expressed in working-space units (identity for precomputed)."""
-    return value if cloud.distance_matrix is not None else cloud.metric.to_working(value)
-
-
 def to_metric(cloud: Cloud, value):
     """Working-space value(s) expressed in the metric's units (identity for precomputed)."""
     return np.asarray(value, dtype=np.float64) if cloud.distance_matrix is not None else cloud.metric.to_metric(value)

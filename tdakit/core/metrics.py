@@ -73,10 +73,6 @@ class Metric:
         """False for the cosine dissimilarity, which breaks the triangle inequality."""
         return self.name != "cosine"
 
-    @property
-    def embeds_in_r3(self) -> bool:
-        return self.name == "angular"
-
     def to_dict(self) -> dict:
         return {"name": self.name, "p": self.p, "box": None if self.box is None else list(self.box)}
 
@@ -106,21 +102,6 @@ class Metric:
         if self.name == "cosine":
             return working * working / 2.0
         return working
-
-    def to_working(self, value: NDArray[np.float64] | float) -> NDArray[np.float64]:
-        """Inverse of :meth:`to_metric` (values beyond the metric's range map to inf)."""
-        value = np.asarray(value, dtype=np.float64)
-        if self.name == "angular":
-            with np.errstate(invalid="ignore"):
-                out = 2.0 * np.sin(np.radians(np.minimum(value, 180.0)) / 2.0)
-            return np.where(value >= 180.0, np.inf, out)
-        if self.name == "cosine":
-            return np.where(value >= 2.0, np.inf, np.sqrt(2.0 * np.maximum(value, 0.0)))
-        return value
-
-    @property
-    def working_p(self) -> float:
-        return self.p
 
     def working_boxsize(self) -> NDArray[np.float64] | None:
         return None if self.box is None else np.asarray(self.box, dtype=np.float64)

@@ -42,13 +42,11 @@ def test_subsample_band_covers_the_circle_diagram():
 def kde_target(grid, n_quadrature=400_000):
     """E of the binned estimate for the uniform circle: bin probabilities by quadrature, then smoothed."""
     angles = (np.arange(n_quadrature) + 0.5) * 2 * np.pi / n_quadrature
-    on_circle = tdakit.Cloud(np.column_stack((np.cos(angles), np.sin(angles))), tdakit.Metric(), ("x", "y"))
-    quadrature = kde.make_density_grid(on_circle, grid.bandwidth, grid.shape[0])
-    # same bins as the sample's grid
-    index = np.clip(((on_circle.points - grid.lower) / grid.cell).astype(int), 0, grid.shape[0] - 1)
+    on_circle = np.column_stack((np.cos(angles), np.sin(angles)))
+    # the same bins as the sample's grid
+    index = np.clip(((on_circle - grid.lower) / grid.cell).astype(int), 0, grid.shape[0] - 1)
     probability = np.bincount(np.ravel_multi_index(index.T, grid.shape), minlength=grid.counts.size)
     probability = probability.reshape(grid.shape) / n_quadrature
-    del quadrature
     return kde.smooth_counts(grid, probability, 1)
 
 
