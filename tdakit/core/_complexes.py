@@ -75,9 +75,14 @@ def _collapsed_matrix(tree, n):
     return matrix
 
 
-def rips_tree(cloud: Cloud, landmarks, max_dim, cap, *, collapse, budget):
+def _landmark_matrix(cloud: Cloud, landmarks, budget) -> NDArray[np.float64]:
+    """The dense landmark-to-landmark distance matrix, refused before it is built when over budget."""
     check_dense_matrix(landmarks.size, budget)
-    matrix = _geometry.pairwise(cloud, landmarks, landmarks)
+    return _geometry.pairwise(cloud, landmarks, landmarks)
+
+
+def rips_tree(cloud: Cloud, landmarks, max_dim, cap, *, collapse, budget):
+    matrix = _landmark_matrix(cloud, landmarks, budget)
     return flag_tree(matrix, cap, max_dim, collapse=collapse, budget=budget, what="Rips complex"), False
 
 
@@ -85,8 +90,7 @@ def sparse_rips_tree(cloud: Cloud, landmarks, max_dim, cap, *, sparse, seed, bud
     import gudhi
     import gudhi.random
 
-    check_dense_matrix(landmarks.size, budget)
-    matrix = _geometry.pairwise(cloud, landmarks, landmarks)
+    matrix = _landmark_matrix(cloud, landmarks, budget)
     check_budget(estimate_flag_complex(matrix, cap, 1), budget, what="sparse Rips input graph", advice=_ADVICE)
     gudhi.random.set_seed(seed)
     complex_ = gudhi.RipsComplex(distance_matrix=matrix, max_edge_length=cap, sparse=sparse)
@@ -100,9 +104,8 @@ def dtm_weights(cloud: Cloud, landmarks, k: int) -> NDArray[np.float64]:
 
 
 def dtm_tree(cloud: Cloud, landmarks, max_dim, cap, *, k, collapse, budget):
-    check_dense_matrix(landmarks.size, budget)
     weights = dtm_weights(cloud, landmarks, k)
-    matrix = _geometry.pairwise(cloud, landmarks, landmarks) + weights[:, None] + weights[None, :]
+    matrix = _landmark_matrix(cloud, landmarks, budget) + weights[:, None] + weights[None, :]
     matrix = np.maximum(matrix, 2 * np.maximum(weights[:, None], weights[None, :]))
     np.fill_diagonal(matrix, 2 * weights)
     return flag_tree(matrix, cap, max_dim, collapse=collapse, budget=budget, what="DTM-Rips complex"), False

@@ -69,7 +69,7 @@ def _kernel():
         return total
 
     @njit(cache=True)
-    def scan(head, nxt, dist_to, rows, start):
+    def scan(nxt, dist_to, rows, start):
         """Radius and farthest member (lowest cloud index on ties) of the list starting at ``start``."""
         radius, far, i = -1.0, -1, start
         while i != -1:
@@ -93,7 +93,7 @@ def _kernel():
             dist_to[i] = dist(work, i, first_pos, mode, p, box)
             nxt[i] = i + 1 if i + 1 < n else -1
         head[0] = 0 if n > 0 else -1
-        radius[0], far[0] = scan(head, nxt, dist_to, rows, head[0])
+        radius[0], far[0] = scan(nxt, dist_to, rows, head[0])
         count = 1
         while count < n_landmarks:
             best, pick = -1.0, -1
@@ -126,7 +126,7 @@ def _kernel():
                             kept_radius, kept_far = dist_to[i], i
                     i = following
                 radius[j], far[j] = kept_radius, kept_far
-            radius[new], far[new] = scan(head, nxt, dist_to, rows, head[new])
+            radius[new], far[new] = scan(nxt, dist_to, rows, head[new])
             count += 1
         return chosen[:count], owner, dist_to
 
