@@ -4,8 +4,12 @@ Subpackages
 -----------
 core
     Clouds and metrics, landmarks, filtrations, persistence diagrams, diagram distances.
+config, pipeline, study
+    Frozen run options; the one pipeline (analyze, rerun); the subsampling study.
 io
-    Reading clouds from arrays, DataFrames and files.
+    Reading clouds from arrays, DataFrames and files; run files.
+plotting
+    Figures for papers (matplotlib Figure only; imported on demand).
 shapes, scenarios
     Samplers of shapes with known topology; the invented demo scenarios.
 cli
@@ -14,6 +18,7 @@ cli
 ``import tdakit`` loads neither ipywidgets, matplotlib.pyplot nor dask.
 """
 
+from tdakit.config import AnalysisOptions, BandOptions, ComplexOptions, SamplingOptions, StudyOptions
 from tdakit.core import (
     Band,
     Cloud,
@@ -34,11 +39,25 @@ from tdakit.core import (
     significance_table,
     witness_edge_values,
 )
-from tdakit.io import load_cloud
+from tdakit.io import load_cloud, load_run, save_run
+from tdakit.pipeline import RunResult, analyze, rerun
+from tdakit.study import StudyResult, subsampling_study
 
 __version__ = "0.1.0"
 
 __all__ = [
+    "AnalysisOptions",
+    "BandOptions",
+    "ComplexOptions",
+    "RunResult",
+    "SamplingOptions",
+    "StudyOptions",
+    "StudyResult",
+    "analyze",
+    "load_run",
+    "rerun",
+    "save_run",
+    "subsampling_study",
     "Band",
     "Cloud",
     "Diagrams",

@@ -169,6 +169,7 @@ PUBLIC_WITH_DATA = [
     (tdakit.load_cloud, 1), (tdakit.select_landmarks, 2), (tdakit.compute_diagrams, 1),
     (tdakit.diagram_distance, 2), (tdakit.knn_density, 2), (tdakit.knn_radius, 2),
     (tdakit.densest_points, 2), (tdakit.witness_edge_values, 2), (shapes.circle, 1), (shapes.torus, 1),
+    (tdakit.analyze, 2), (tdakit.subsampling_study, 2), (tdakit.rerun, 2), (tdakit.save_run, 2),
 ]
 
 
@@ -235,3 +236,28 @@ def test_permutation_test_bad_input(kwargs, parameter):
     with pytest.raises(TdakitError) as info:
         tdakit.permutation_test(kwargs.pop("group_a"), kwargs.pop("group_b"), **kwargs)
     assert info.value.parameter == parameter
+
+
+def test_analyze_repeats_for_the_same_rng_and_survives_a_save_load_round_trip(tmp_path, global_seed):
+    from tests.helpers import assert_same
+
+    options = {"sampling": {"n_landmarks": 10}, "band": {"n_boot": 10}}
+    first = tdakit.analyze(cloud(), options, rng=global_seed)
+    again = tdakit.analyze(cloud(), options, rng=global_seed)
+    assert_same(first.diagrams.pairs, again.diagrams.pairs)
+    assert first.band.radii == again.band.radii
+    assert_same(first, tdakit.load_run(tdakit.save_run(first, tmp_path / "r")))
+
+
+@pytest.mark.parametrize(("function", "kwargs", "parameter"), [
+    (tdakit.analyze, dict(cloud=GOOD), "cloud"),
+    (tdakit.analyze, dict(cloud=None), "cloud"),
+    (tdakit.subsampling_study, dict(cloud=GOOD), "cloud"),
+    (tdakit.rerun, dict(run=GOOD), "run"),
+    (tdakit.save_run, dict(run=None, path="x"), "run"),
+    (tdakit.load_run, dict(path=3), "path"),
+])
+def test_pipeline_bad_input(function, kwargs, parameter):
+    with pytest.raises(TdakitError) as info:
+        function(**kwargs)
+    assert info.value.parameter == parameter and f"'{parameter}'" in str(info.value)

@@ -13,6 +13,7 @@ def test_import_stays_light():
 
 
 def test_public_names():
-    for name in ("load_cloud", "select_landmarks", "compute_diagrams", "diagram_distance", "Cloud", "Diagrams"):
+    for name in ("load_cloud", "select_landmarks", "compute_diagrams", "diagram_distance", "Cloud", "Diagrams",
+                 "analyze", "rerun", "subsampling_study", "save_run", "load_run", "AnalysisOptions"):
         assert name in tdakit.__all__ and callable(getattr(tdakit, name))
     assert tdakit.__version__

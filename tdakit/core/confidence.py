@@ -18,7 +18,7 @@ from tdakit.core.landscapes import persistence_landscape
 from tdakit.core.replicates import config_fingerprint, root_seed, run_replicates
 from tdakit.errors import TdakitWarning
 
-__all__ = ["confidence_band", "BAND_METHODS"]
+__all__ = ["confidence_band", "hausdorff_level", "subsample_band", "BAND_METHODS"]
 
 BAND_METHODS = ("bootstrap", "density", "landscape", "subsample")
 _FN = "confidence_band"
@@ -203,28 +203,76 @@ def _hausdorff_task(payload, rng) -> float:
 
 
 def _subsample_band(cloud, opts, run, bandwidth, resolution) -> Band:
-    constant = stability_constant(opts["filtration"])
-    if constant is None or not cloud.metric.is_metric:
-        raise fail("method", _FN, f"not 'subsample' with filtration {opts['filtration']!r} and metric "
-                   f"{cloud.metric.name!r} (it needs a Hausdorff stability constant: rips or alpha on a true metric)",
-                   opts["method"])
+    _check_subsample_allowed(cloud, opts["filtration"], opts["method"])
     n = cloud.n_points
     size = opts["subsample_size"] or max(1, int(n / np.log(n)))
     diagrams = _reference(cloud, opts)
     stats = run_replicates(_hausdorff_task, (cloud, size), opts["n_boot"], opts["seed"], **run,
                            fingerprint=_fingerprint(cloud, opts, size))
-    level_c = 2.0 * _quantile(stats, opts["level"])
-    marks = opts["landmarks"]
-    eps = marks.coverage_radius if (marks is not None and opts["account"]) else 0.0
-    radius = constant * (level_c + eps)
-    handling = (f"accounted for: radius = {constant:g} x (c + eps) with eps = {eps:.4g}" if marks is not None and
-                opts["account"] else "not accounted for" if marks is not None else "none used (every point)")
-    target = f"the {opts['filtration']} diagram of the shape the points were sampled from"
+    return subsample_band(diagrams, 2.0 * _quantile(stats, opts["level"]), level=opts["level"],
+                          landmarks=opts["landmarks"], account_for_landmarks=opts["account"], replicates=stats,
+                          seed=opts["seed"], subsample_size=size)
+
+
+def _check_subsample_allowed(cloud, filtration, method, name="method", function=_FN) -> None:
+    if stability_constant(filtration) is None or not cloud.metric.is_metric:
+        raise fail(name, function, f"not 'subsample' with filtration {filtration!r} and metric "
+                   f"{cloud.metric.name!r} (it needs a Hausdorff stability constant: rips or alpha on a true metric)",
+                   method)
+
+
+def hausdorff_level(cloud: Cloud, *, level: float = 0.95, n_boot: int = 200, subsample_size: int | None = None,
+                    rng=None, **run) -> tuple[float, np.ndarray]:
+    """The subsampling method's Hausdorff level c = 2 * quantile of d_H(subsample, cloud).
+
+    It depends on the cloud only, not on landmarks or filtration, so one level serves
+    many landmark settings (see :func:`subsample_band`). Returns ``(c, replicates)``.
+    ``run`` takes ``n_jobs``, ``executor``, ``progress``.
+
+    References
+    ----------
+    .. [1] B. T. Fasy et al., "Confidence sets for persistence diagrams", Ann. Statist.
+       42(6) (2014) 2301-2339, Section 4.1.
+    """
+    if not isinstance(cloud, Cloud):
+        raise fail("cloud", "hausdorff_level", "a Cloud", cloud)
+    level = check_float(level, "level", "hausdorff_level", low=0.0, high=1.0, low_open=True, high_open=True)
+    n = cloud.n_points
+    size = subsample_size or max(1, int(n / np.log(n)))
+    size = check_int(size, "subsample_size", "hausdorff_level", low=1, high=n - 1, note="fewer than the points")
+    seed = root_seed(rng, "hausdorff_level")
+    stats = run_replicates(_hausdorff_task, (cloud, size), n_boot, seed, function="hausdorff_level", **run)
+    return 2.0 * _quantile(stats, level), stats
+
+
+def subsample_band(diagrams: Diagrams, hausdorff: float, *, level: float, landmarks: Landmarks | None = None,
+                   account_for_landmarks: bool = True, replicates=None, seed: int = 0,
+                   subsample_size: int | None = None) -> Band:
+    """The subsampling band for diagrams built on ``landmarks``, from a Hausdorff level c.
+
+    radius = C * (c + eps), C the filtration's stability constant and eps the landmarks'
+    coverage radius (0 without landmarks) [1]_ (Section 4.1).
+
+    References
+    ----------
+    .. [1] B. T. Fasy et al., "Confidence sets for persistence diagrams", Ann. Statist.
+       42(6) (2014) 2301-2339.
+    """
+    constant = stability_constant(diagrams.filtration)
+    if constant is None:
+        raise fail("diagrams", "subsample_band", "diagrams of a filtration with a stability constant (rips, alpha)",
+                   diagrams.filtration)
+    eps = landmarks.coverage_radius if (landmarks is not None and account_for_landmarks) else 0.0
+    radius = constant * (hausdorff + eps)
+    handling = ("none used (every point)" if landmarks is None else "not accounted for" if not account_for_landmarks
+                else f"accounted for: radius = {constant:g} x (c + eps) with eps = {eps:.4g}")
+    target = f"the {diagrams.filtration} diagram of the shape the points were sampled from"
     validity = "confidence set (Fasy et al. 2014, Section 4.1; valid, conservative)"
-    return Band("subsample", opts["level"], (radius,) * (opts["max_dim"] + 1), diagrams, target, validity,
-                _statement("subsample", opts["level"], target, validity), handling, stats, opts["seed"],
-                {"subsample_size": size, "hausdorff_level": level_c, "coverage_radius": eps,
-                 "stability_constant": constant, "n_boot": opts["n_boot"]})
+    stats = np.zeros(0) if replicates is None else np.asarray(replicates)
+    return Band("subsample", level, (radius,) * len(diagrams), diagrams, target, validity,
+                _statement("subsample", level, target, validity), handling, stats, seed,
+                {"subsample_size": subsample_size, "hausdorff_level": hausdorff, "coverage_radius": eps,
+                 "stability_constant": constant, "n_boot": int(stats.size)})
 
 
 # -- bottleneck bootstrap -------------------------------------------------------------------------

@@ -34,7 +34,9 @@ def root_seed(rng, function: str) -> int:
     raise fail("rng", function, "None, a non-negative int, a SeedSequence or a numpy Generator", rng)
 
 
-def _chunk(task: Callable, payload, items: Sequence[tuple[int, np.random.SeedSequence]]) -> list:
+def _chunk(task: Callable, payload, items: Sequence[tuple[int, np.random.SeedSequence]], indexed: bool = False) -> list:
+    if indexed:
+        return [(i, task(payload, np.random.default_rng(seed), i)) for i, seed in items]
     return [(i, task(payload, np.random.default_rng(seed))) for i, seed in items]
 
 
@@ -50,6 +52,7 @@ def run_replicates(
     checkpoint: str | os.PathLike | None = None,
     fingerprint: str = "",
     function: str = "confidence_band",
+    indexed: bool = False,
 ) -> np.ndarray:
     """Return ``[task(payload, rng_i) for i in range(n_replicates)]`` stacked as an array.
 
@@ -68,6 +71,8 @@ def run_replicates(
     checkpoint : path, optional
         File where completed replicates are saved atomically; an existing file with the
         same ``fingerprint`` is resumed, one from another configuration is refused.
+    indexed : bool, default=False
+        Call ``task(payload, rng, i)`` with the replicate's index (for grids of settings).
     """
     n_replicates = check_int(n_replicates, "n_boot", function, low=1, high=10**7)
     n_jobs = check_int(n_jobs, "n_jobs", function, low=-1, high=4096)
@@ -81,7 +86,7 @@ def run_replicates(
     workers = (os.cpu_count() or 1) if n_jobs == -1 else n_jobs
     # At least 16 chunks, so progress reports and checkpoints come often even on one worker.
     chunks = _split(todo, max(16, 4 * workers))
-    for finished in _execute(task, payload, chunks, workers, executor):
+    for finished in _execute(task, payload, chunks, workers, executor, indexed):
         done.update(finished)
         if checkpoint is not None:
             _save_checkpoint(checkpoint, fingerprint, seed, done)
@@ -97,20 +102,20 @@ def _split(items, n_chunks):
     return [items[s:s + size] for s in range(0, len(items), size)]
 
 
-def _execute(task, payload, chunks, workers, executor):
+def _execute(task, payload, chunks, workers, executor, indexed):
     """Yield each chunk's results as a dict, in completion order."""
     if executor is not None:
-        futures = [executor.submit(_chunk, task, payload, chunk) for chunk in chunks]
+        futures = [executor.submit(_chunk, task, payload, chunk, indexed) for chunk in chunks]
         for future in futures:
             yield dict(future.result())
     elif workers == 1:
         for chunk in chunks:
-            yield dict(_chunk(task, payload, chunk))
+            yield dict(_chunk(task, payload, chunk, indexed))
     else:
         from joblib import Parallel, delayed
 
         parallel = Parallel(n_jobs=workers, return_as="generator_unordered")
-        for result in parallel(delayed(_chunk)(task, payload, chunk) for chunk in chunks):
+        for result in parallel(delayed(_chunk)(task, payload, chunk, indexed) for chunk in chunks):
             yield dict(result)
 
 

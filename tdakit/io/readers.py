@@ -98,7 +98,7 @@ def load_cloud(
     if isinstance(source, (str, os.PathLike)):
         path = Path(source)
         table, names, checksum = _read_file(path, delimiter=delimiter, header=header, key=key)
-        label = str(path)
+        label = str(path.resolve())
     elif _is_dataframe(source):
         names = tuple(str(c) for c in source.columns)
         positions = _positions(columns, names, len(names))

@@ -83,21 +83,24 @@ def test_wasserstein_agrees_with_persim(size, global_seed):
     assert ours == pytest.approx(persim.wasserstein(a, b), rel=1e-9)
 
 
+def _pot_wasserstein(a, b, order=1.0):
+    """POT's exact transport on the augmented (n+m) x (n+m) problem of Cohen-Steiner et al. (2010)."""
+    n, m = len(a), len(b)
+    cost = np.full((n + m, n + m), 1e6)
+    cost[:n, :m] = np.abs(a[:, None, :] - b[None, :, :]).max(axis=2) ** order
+    cost[n:, m:] = 0.0
+    cost[np.arange(n), m + np.arange(n)] = ((a[:, 1] - a[:, 0]) / 2) ** order
+    cost[n + np.arange(m), np.arange(m)] = ((b[:, 1] - b[:, 0]) / 2) ** order
+    return ot.emd2(np.ones(n + m), np.ones(n + m), cost, numItermax=10**7) ** (1 / order)
+
+
 @pytest.mark.parametrize("order", [1.0, 2.0])
 def test_wasserstein_agrees_with_pot_on_the_augmented_problem(order, global_seed):
     # POT's exact transport (network simplex) on the (n+m) x (n+m) augmented cost matrix of
     # Cohen-Steiner et al. (2010): points, their diagonal projections, zero cost between projections.
     rng = np.random.default_rng(global_seed)
     a, b = random_diagram(rng, 40, 0.2), random_diagram(rng, 30, 0.2)
-    n, m = len(a), len(b)
-    cost = np.zeros((n + m, n + m))
-    cost[:n, :m] = np.abs(a[:, None, :] - b[None, :, :]).max(axis=2) ** order
-    cost[:n, m:] = np.inf
-    cost[n:, :m] = np.inf
-    cost[np.arange(n), m + np.arange(n)] = ((a[:, 1] - a[:, 0]) / 2) ** order
-    cost[n + np.arange(m), np.arange(m)] = ((b[:, 1] - b[:, 0]) / 2) ** order
-    cost[np.isinf(cost)] = 1e6
-    expected = ot.emd2(np.ones(n + m), np.ones(n + m), cost, numItermax=10**7) ** (1 / order)
+    expected = _pot_wasserstein(a, b, order)
     assert tdakit.diagram_distance(a, b, kind="wasserstein", order=order) == pytest.approx(expected, rel=1e-9)
 
 
@@ -140,3 +143,25 @@ def test_large_diagrams():
     shift = np.abs(a - b).max()
     assert tdakit.diagram_distance(a, b) <= shift  # the identity matching costs at most the largest shift
     assert tdakit.diagram_distance(a, b, kind="wasserstein") > 0
+
+
+def test_wasserstein_on_tied_h0_diagrams_terminates_and_matches_pot():
+    """Regression: a 20- vs 1,200-point H0 pair (all births 0) once made the sparse matching cycle forever.
+
+    Run in a subprocess with a time limit (scipy's matching cannot be interrupted); the value is
+    cross-checked against POT's network simplex on the dense problem (Flamary et al., JMLR 22(78), 2021).
+    """
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    data = Path(__file__).resolve().parents[1] / "data" / "wasserstein_tied_h0.npz"
+    code = (f"import numpy as np, tdakit; d = np.load(r'{data}'); "
+            "print(tdakit.diagram_distance(d['small'], d['large'], kind='wasserstein'))")
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0, done.stderr
+    with np.load(data) as pair:
+        small, large = pair["small"], pair["large"]
+    finite_a, finite_b = small[np.isfinite(small[:, 1])], large[np.isfinite(large[:, 1])]
+    expected = _pot_wasserstein(finite_a, finite_b)
+    assert float(done.stdout) == pytest.approx(expected, rel=1e-9)

@@ -1,0 +1,285 @@
+"""The one pipeline: cloud -> landmarks -> diagrams -> band -> significance, with provenance.
+
+The command line, the widgets and the notebooks all call :func:`analyze`; nothing
+else chains the steps.
+"""
+
+from __future__ import annotations
+
+import datetime
+import platform
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tdakit._memory import PeakMemory
+from tdakit._validation import fail
+from tdakit.config import AnalysisOptions
+from tdakit.core.bands import Band
+from tdakit.core.cloud import Cloud
+from tdakit.core.confidence import confidence_band
+from tdakit.core.diagrams import Diagrams
+from tdakit.core.filtrations import compute_diagrams
+from tdakit.core.landmarks import Landmarks, select_landmarks
+from tdakit.core.replicates import root_seed
+from tdakit.core.tables import significance_table
+from tdakit.errors import InvalidDataError
+
+__all__ = ["RunResult", "analyze", "rerun", "PREVIEW_POINTS"]
+
+PREVIEW_POINTS = 20_000
+_FN = "analyze"
+
+
+@dataclass(frozen=True, eq=False)
+class RunResult:
+    """Everything one analysis produced, enough to redraw its figures and tables without recomputing.
+
+    Attributes
+    ----------
+    options : AnalysisOptions
+    seed : int
+        Root seed; :func:`rerun` with it reproduces every number.
+    landmarks : Landmarks or None
+        None when every point was a vertex.
+    landmark_points : ndarray of shape (n_landmarks, n_dims)
+        Landmark coordinates (for figures; width 0 for a precomputed metric).
+    preview_indices, preview_points : ndarray
+        A random display sample of at most ``PREVIEW_POINTS`` points of the cloud.
+    diagrams : Diagrams
+    band : Band or None
+    timings : dict
+        Seconds per step.
+    peak_memory : dict
+        ``bytes`` (peak resident memory of this process during the run) and ``scope``.
+    provenance : dict
+        Versions, input description and checksum, creation time.
+    """
+
+    options: AnalysisOptions
+    seed: int
+    landmarks: Landmarks | None
+    landmark_points: NDArray[np.float64] = field(repr=False)
+    preview_indices: NDArray[np.intp] = field(repr=False)
+    preview_points: NDArray[np.float64] = field(repr=False)
+    diagrams: Diagrams = field(repr=False)
+    band: Band | None
+    timings: dict = field(default_factory=dict)
+    peak_memory: dict = field(default_factory=dict)
+    provenance: dict = field(default_factory=dict, repr=False)
+
+    @property
+    def coverage_radius(self) -> float:
+        """Every point lies within this distance of a landmark (0 without landmarks)."""
+        return 0.0 if self.landmarks is None else self.landmarks.coverage_radius
+
+    @property
+    def table(self):
+        """Every class with its significance, as a pandas DataFrame (see :func:`significance_table`)."""
+        return significance_table(self.diagrams, self.band)
+
+    def landmark_coordinates(self, indices) -> NDArray[np.float64]:
+        """Coordinates of cloud indices that are landmarks (e.g. a feature's vertices)."""
+        if self.landmarks is None:
+            raise InvalidDataError("This run used every point as a vertex and kept only a preview of the cloud; "
+                                   "feature locations need the cloud itself.", parameter="indices")
+        lookup = {int(v): i for i, v in enumerate(self.landmarks.indices)}
+        return self.landmark_points[[lookup[int(v)] for v in indices]]
+
+    def summary(self) -> str:
+        source = self.provenance.get("input", {})
+        lines = [f"Run on {source.get('n_points', '?')} points ({source.get('source', '?')}), seed {self.seed}."]
+        if self.landmarks is not None:
+            lines.append(f"{self.landmarks.n_landmarks} landmarks by {self.landmarks.method}; coverage radius "
+                         f"{self.coverage_radius:.4g}.")
+        lines.append(self.diagrams.summary())
+        lines.append(self.band.summary() if self.band is not None else "No confidence band (method 'none').")
+        steps = ", ".join(f"{k} {v:.2f} s" for k, v in self.timings.items())
+        lines.append(f"Time: {steps}. Peak memory {self.peak_memory.get('bytes', 0) / 2**20:.0f} MiB "
+                     f"({self.peak_memory.get('scope', '?')}).")
+        return "\n".join(lines)
+
+    def save(self, path) -> Path:
+        """Write the run file (see :func:`tdakit.io.save_run`)."""
+        from tdakit.io.runfiles import save_run
+
+        return save_run(self, path)
+
+
+def _check_options(options) -> AnalysisOptions:
+    if options is None:
+        return AnalysisOptions()
+    if isinstance(options, dict):
+        return AnalysisOptions.from_dict(options)
+    if not isinstance(options, AnalysisOptions):
+        raise fail("options", _FN, "None, an AnalysisOptions or a dict of its sections", options)
+    return options
+
+
+def _step_seeds(seed: int) -> list[int]:
+    """Independent seeds for landmarks, diagrams, band and preview, from the root seed."""
+    return [int(s) for s in np.random.SeedSequence(seed).generate_state(4, np.uint32)]
+
+
+def analyze(
+    cloud: Cloud,
+    options: AnalysisOptions | dict | None = None,
+    *,
+    rng=None,
+    n_jobs: int = 1,
+    executor=None,
+    progress: Callable[[str, int, int], None] | None = None,
+    checkpoint=None,
+) -> RunResult:
+    """Run the whole job on one cloud: landmarks, diagrams, confidence band, significance.
+
+    Parameters
+    ----------
+    cloud : Cloud
+        From :func:`tdakit.load_cloud`.
+    options : AnalysisOptions or dict, optional
+        Sampling, complex and band options (default: 200 maxmin landmarks, Rips up to H1,
+        subsampling band at 0.95).
+    rng : int, Generator or None
+        Root randomness; the run records the root seed it used.
+    n_jobs, executor, checkpoint
+        Passed to :func:`confidence_band` for the replicates.
+    progress : callable, optional
+        ``progress(step, done, total)`` with ``step`` in ``"landmarks"``, ``"diagrams"``,
+        ``"band"``.
+
+    Returns
+    -------
+    RunResult
+    """
+    if not isinstance(cloud, Cloud):
+        raise fail("cloud", _FN, "a Cloud from tdakit.load_cloud", cloud)
+    options = _check_options(options)
+    if progress is not None and not callable(progress):
+        raise fail("progress", _FN, "None or a callable progress(step, done, total)", progress)
+    seed = root_seed(rng, _FN)
+    seeds = _step_seeds(seed)
+    report = progress or (lambda step, done, total: None)
+    timings: dict[str, float] = {}
+    with PeakMemory() as memory:
+        marks = _landmarks(cloud, options, seeds[0], timings, report)
+        diagrams, band = _diagrams_and_band(cloud, marks, options, seeds, timings, report,
+                                            {"n_jobs": n_jobs, "executor": executor, "checkpoint": checkpoint})
+    preview = _preview(cloud, seeds[3])
+    points = cloud.points[marks.indices] if marks is not None else np.zeros((0, cloud.n_dims))
+    return RunResult(options, seed, marks, points, preview, cloud.points[preview], diagrams, band, timings,
+                     {"bytes": memory.peak_bytes, "scope": memory.scope}, provenance(cloud, options, seed))
+
+
+def _landmarks(cloud, options, seed, timings, report) -> Landmarks | None:
+    sampling = options.sampling
+    if sampling.n_landmarks is None:
+        return None
+    start = time.perf_counter()
+    report("landmarks", 0, 1)
+    marks = select_landmarks(cloud, sampling.n_landmarks, method=sampling.method, rng=seed,
+                             **sampling.landmark_options())
+    report("landmarks", 1, 1)
+    timings["landmarks"] = time.perf_counter() - start
+    return marks
+
+
+def _diagrams_and_band(cloud, marks, options, seeds, timings, report, run) -> tuple[Diagrams, Band | None]:
+    complex_, band_options = options.complex, options.band
+    start = time.perf_counter()
+    if band_options.method == "none":
+        report("diagrams", 0, 1)
+        diagrams = compute_diagrams(cloud, landmarks=marks, filtration=complex_.filtration,
+                                    max_dim=complex_.max_dim, rng=seeds[1], **complex_.diagram_options())
+        report("diagrams", 1, 1)
+        timings["diagrams"] = time.perf_counter() - start
+        return diagrams, None
+    band = confidence_band(cloud, landmarks=marks, filtration=complex_.filtration, max_dim=complex_.max_dim,
+                           diagram_options=complex_.diagram_options(), rng=seeds[2],
+                           progress=lambda done, total: report("band", done, total), **run,
+                           **band_options.to_dict())
+    timings["diagrams + band"] = time.perf_counter() - start
+    return band.diagrams, band
+
+
+def _preview(cloud: Cloud, seed: int) -> NDArray[np.intp]:
+    if cloud.n_points <= PREVIEW_POINTS:
+        return np.arange(cloud.n_points)
+    chosen = np.random.default_rng(seed).choice(cloud.n_points, size=PREVIEW_POINTS, replace=False)
+    return np.sort(chosen)
+
+
+def _versions() -> dict:
+    import gudhi
+    import scipy
+
+    import tdakit
+
+    return {"tdakit": tdakit.__version__, "gudhi": gudhi.__version__, "numpy": np.__version__,
+            "scipy": scipy.__version__, "python": platform.python_version()}
+
+
+def provenance(cloud: Cloud, options: AnalysisOptions, seed: int) -> dict:
+    """What made a run: versions, the input (with its file checksum), options, seed and time."""
+    source = {"source": cloud.source, "file_checksum": cloud.source_checksum, "fingerprint": cloud.fingerprint,
+              "n_points": cloud.n_points, "n_dims": cloud.n_dims, "columns": list(cloud.columns),
+              "metric": cloud.metric.to_dict(), "standardized": cloud.shift is not None,
+              "n_duplicates": cloud.n_duplicates}
+    return {"versions": _versions(), "platform": platform.platform(), "input": source,
+            "options": options.to_dict(), "seed": seed,
+            "created": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds")}
+
+
+def rerun(run: RunResult, cloud: Cloud | None = None, *, n_jobs: int = 1, executor=None,
+          progress: Callable[[str, int, int], None] | None = None) -> RunResult:
+    """Recompute a run from its provenance: same data, options and seed give the same numbers.
+
+    Parameters
+    ----------
+    run : RunResult
+        A run, typically from :func:`tdakit.io.load_run`.
+    cloud : Cloud, optional
+        The data; default: reload the input file named in the provenance, whose
+        checksum must match. Clouds not read from a file must be passed here.
+    n_jobs, executor, progress
+        As in :func:`analyze`; they do not change the numbers.
+    """
+    if not isinstance(run, RunResult):
+        raise fail("run", "rerun", "a RunResult (from analyze or load_run)", run)
+    recorded = run.provenance["input"]
+    if cloud is None:
+        cloud = _reload(recorded)
+    if not isinstance(cloud, Cloud):
+        raise fail("cloud", "rerun", "None or a Cloud", cloud)
+    if cloud.fingerprint != recorded["fingerprint"]:
+        raise InvalidDataError(
+            f"The cloud passed to rerun differs from the one the run was made on (its coordinates or metric "
+            f"changed: fingerprint {cloud.fingerprint[:12]} instead of {recorded['fingerprint'][:12]}).",
+            parameter="cloud")
+    return analyze(cloud, run.options, rng=run.seed, n_jobs=n_jobs, executor=executor, progress=progress)
+
+
+def _reload(recorded: dict) -> Cloud:
+    from tdakit.errors import DataFileNotFoundError
+    from tdakit.io.readers import load_cloud
+
+    if recorded["file_checksum"] is None:
+        raise fail("cloud", "rerun", f"a Cloud: this run was made on data from {recorded['source']!r}, not a file, "
+                   "so pass the same data again", None)
+    path = Path(recorded["source"])
+    if not path.exists():
+        raise DataFileNotFoundError(f"The run's input file {str(path)!r} no longer exists; load it from its new "
+                                    f"place and pass it as rerun(run, cloud=...).", parameter="cloud")
+    metric = recorded["metric"]
+    columns = recorded["columns"] or None
+    cloud = load_cloud(path, columns=columns, metric=metric["name"], box=metric.get("box"),
+                       p=metric.get("p") if metric["name"] == "minkowski" else None,
+                       standardize=recorded["standardized"])
+    if cloud.source_checksum != recorded["file_checksum"]:
+        raise InvalidDataError(f"The file {str(path)!r} changed since the run was made (checksum differs).",
+                               parameter="cloud")
+    return cloud
