@@ -103,6 +103,18 @@ class RunResult:
                      f"({self.peak_memory.get('scope', '?')}).")
         return "\n".join(lines)
 
+    def at_level(self, level: float) -> RunResult:
+        """The same run with its band re-read at another level (instant: no replicate is recomputed)."""
+        import dataclasses
+
+        from tdakit.core.confidence import band_at_level
+
+        if self.band is None:
+            raise fail("level", "RunResult.at_level", "used only on a run with a band", level)
+        band = band_at_level(self.band, level)
+        options = dataclasses.replace(self.options, band=dataclasses.replace(self.options.band, level=band.level))
+        return dataclasses.replace(self, band=band, options=options)
+
     def save(self, path) -> Path:
         """Write the run file (see :func:`tdakit.io.save_run`)."""
         from tdakit.io.runfiles import save_run

@@ -18,7 +18,7 @@ from tdakit.core.landscapes import persistence_landscape
 from tdakit.core.replicates import config_fingerprint, root_seed, run_replicates
 from tdakit.errors import TdakitWarning
 
-__all__ = ["confidence_band", "hausdorff_level", "subsample_band", "BAND_METHODS"]
+__all__ = ["confidence_band", "band_at_level", "hausdorff_level", "subsample_band", "BAND_METHODS"]
 
 BAND_METHODS = ("bootstrap", "density", "landscape", "subsample")
 _FN = "confidence_band"
@@ -400,3 +400,35 @@ def _density_diagrams(density, grid, opts) -> Diagrams:
     return Diagrams(tuple(pairs), flags, empty, deaths, filtration="density",
                     units="negated kernel density (superlevel sets)", coefficient_field=2,
                     params={"bandwidth": grid.bandwidth, "location": "not available for grid densities"})
+
+
+def band_at_level(band: Band, level: float) -> Band:
+    """The same band at another confidence level, from its stored replicates (no recomputation).
+
+    Every method's radius is a quantile of replicates that do not depend on the level,
+    so changing the level only re-reads them.
+    """
+    import dataclasses
+
+    if not isinstance(band, Band):
+        raise fail("band", "band_at_level", "a Band from confidence_band", band)
+    level = check_float(level, "level", "band_at_level", low=0.0, high=1.0, low_open=True, high_open=True)
+    stats, dims = np.asarray(band.replicates), len(band.radii)
+    if stats.size == 0:
+        raise fail("band", "band_at_level", "a band that kept its replicates", band)
+    curves = band.curves
+    if band.method == "subsample":
+        params = band.params
+        hausdorff = 2.0 * _quantile(stats, level)
+        radii = (params["stability_constant"] * (hausdorff + params["coverage_radius"]),) * dims
+        params = {**params, "hausdorff_level": hausdorff}
+    elif band.method == "bootstrap":
+        radii, params = tuple(_quantile(stats[:, k], level) for k in range(dims)), band.params
+    elif band.method == "density":
+        radii, params = (_quantile(stats, level),) * dims, band.params
+    else:
+        scale = np.sqrt(band.params["n_subsamples"])
+        halfwidth = np.array([_quantile(stats[:, k], level) for k in range(dims)]) / scale
+        radii, params, curves = tuple(float(h) for h in halfwidth), band.params, {**curves, "halfwidth": halfwidth}
+    return dataclasses.replace(band, level=level, radii=tuple(float(r) for r in radii), params=params, curves=curves,
+                               statement=_statement(band.method, level, band.target, band.validity))

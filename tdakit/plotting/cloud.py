@@ -19,22 +19,33 @@ def projection(points: np.ndarray, n_components: int = 2) -> tuple[np.ndarray, n
     return centre, axes[:n_components], variance[:n_components]
 
 
-def _feature_rows(run, dim, max_features):
+def significant_features(run, dim: int):
+    """Rows of ``run.table`` for the significant, located, mortal classes of dimension ``dim``."""
     if run.band is None or run.landmarks is None or dim >= len(run.diagrams):
-        return []
+        return run.table.iloc[0:0]
     table = run.table
     rows = table[(table.dimension == dim) & table.significant.fillna(False).astype(bool)
                  & (table.status != "essential")]
-    return [r for r in rows.head(max_features).itertuples() if len(r.birth_vertices) + len(r.death_vertices) > 0]
+    located = [len(b) + len(d) > 0 for b, d in zip(rows.birth_vertices, rows.death_vertices)]
+    return rows[located]
+
+
+def _feature_rows(run, dim, max_features, features):
+    if features is None:
+        return list(significant_features(run, dim).head(max_features).itertuples())
+    table = run.table
+    return [row for row in table.loc[list(features)].itertuples() if len(row.birth_vertices) > 0]
 
 
 @styled
-def plot_cloud(run, *, dim: int = 1, max_features: int = 3, ax=None, preset: str = "single") -> dict:
+def plot_cloud(run, *, dim: int = 1, max_features: int = 3, features=None, ax=None, preset: str = "single") -> dict:
     """Draw the run's preview of the cloud, its landmarks and the vertices of the significant features.
 
     Two or three coordinates are drawn as they are (3-D on a 3-D axes); more are projected on
     their first two principal axes (the explained variance is in the axis labels). A feature is
-    located by the vertices of its birth and death simplices (landmark indices).
+    located by the vertices of its birth and death simplices (landmark indices). ``features``:
+    row labels of ``run.table`` to mark (default: the ``max_features`` most persistent
+    significant classes of dimension ``dim``).
 
     Returns
     -------
@@ -61,7 +72,7 @@ def plot_cloud(run, *, dim: int = 1, max_features: int = 3, ax=None, preset: str
                                                 label=f"points ({len(points)} shown)")}
         drawn["landmarks"] = ax.scatter(*transform(marks).T, s=7, c=LANDMARK_COLOR, marker="o", lw=0,
                                         label=f"landmarks ({len(marks)})") if len(marks) else None
-        drawn["features"] = _features(ax, run, dim, max_features, transform)
+        drawn["features"] = _features(ax, _feature_rows(run, dim, max_features, features), run, transform)
         for axis, label in zip(("x", "y", "z"), labels):
             getattr(ax, f"set_{axis}label")(label)
         ax.legend(frameon=False, loc="upper right")
@@ -80,9 +91,9 @@ def _coordinates(run, points, three):
     return (lambda a: (a - centre) @ axes.T), labels
 
 
-def _features(ax, run, dim, max_features, transform):
+def _features(ax, rows, run, transform):
     drawn = []
-    for number, row in enumerate(_feature_rows(run, dim, max_features), start=1):
+    for number, row in enumerate(rows, start=1):
         vertices = sorted(set(row.birth_vertices) | set(row.death_vertices))
         where = transform(run.landmark_coordinates(vertices))
         artist = ax.scatter(*where.T, s=40, facecolors="none", edgecolors=FEATURE_COLOR, linewidths=1.2,

@@ -75,9 +75,10 @@ def plot_diagram(diagrams: Diagrams, band: Band | None = None, *, dims=None, ax=
     drawn = {"ax": ax, "strips": {}, "significant": {}, "noise": {}, "never_dies": {}, "at_cap": {}}
     with house_style():
         ax.plot([low, top], [low, top], color="#444444", lw=0.7, zorder=1)
+        distinct = band is not None and len({band.strip_height(k) for k in dims}) > 1
         for k in dims:
             if band is not None:
-                drawn["strips"][k] = _strip(ax, low, top, band.strip_height(k), k, len(dims) > 1)
+                drawn["strips"][k] = _strip(ax, low, top, band.strip_height(k), k, distinct)
             _points(ax, diagrams, band, k, top, drawn)
         _decorate(ax, diagrams, band, dims, low, top, title)
     return drawn

@@ -280,3 +280,24 @@ def test_permutation_same_distribution_is_not_significant():
 
     result = tdakit.permutation_test(group(0), group(50), n_permutations=300, rng=1)
     assert not result.exact and result.p_value > 0.05
+
+
+@pytest.mark.parametrize("method, extra", [("subsample", {}), ("bootstrap", {"n_boot": 12}),
+                                           ("density", {"n_boot": 30}), ("landscape", {"n_subsamples": 5})])
+def test_band_at_level_equals_a_fresh_band_at_that_level(method, extra):
+    # Identity test: the radius is a quantile of level-free replicates, so re-reading them must give the
+    # band computed from scratch at the new level with the same seed.
+    from tdakit.core.confidence import band_at_level
+
+    cloud = tdakit.load_cloud(tdakit.shapes.circle(300, noise=0.05, rng=2))
+    marks = tdakit.select_landmarks(cloud, 30, rng=1)
+    options = {"method": method, "n_boot": 40, "rng": 5, **extra}
+    if method != "density":
+        options["landmarks"] = marks
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        low = tdakit.confidence_band(cloud, level=0.8, **options)
+        high = tdakit.confidence_band(cloud, level=0.95, **options)
+    moved = band_at_level(low, 0.95)
+    assert moved.radii == pytest.approx(high.radii, rel=1e-12) and moved.level == 0.95
+    assert moved.statement == high.statement
