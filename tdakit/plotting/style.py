@@ -77,14 +77,29 @@ def _axes(ax, preset="single", aspect=0.8, **kwargs):
     return new_figure(preset, aspect).add_subplot(**kwargs)
 
 
+def _freeze_layout(figure: Figure) -> None:
+    """Run the constrained layout once, then keep it: each draw would otherwise start the iterative
+    layout from the last positions, and a figure saved as PDF then SVG would differ from one saved
+    as SVG alone.
+    """
+    if figure.get_layout_engine() is not None:
+        with house_style():
+            figure.draw_without_rendering()
+        figure.set_layout_engine("none")
+
+
 def save_figure(figure: Figure, path, *, dpi: int = 200) -> Path:
-    """Write a figure as PDF, SVG or PNG (from the suffix), byte-identical for identical content."""
+    """Write a figure as PDF, SVG or PNG (from the suffix), byte-identical for identical content.
+
+    The first save fixes the layout; artists added afterwards are not re-laid out.
+    """
     path = Path(path)
     kind = path.suffix.lower().lstrip(".")
     if kind not in _METADATA:
         from tdakit._validation import fail
 
         raise fail("path", "save_figure", "a file name ending in .pdf, .svg or .png", str(path))
+    _freeze_layout(figure)
     with house_style():
         figure.savefig(path, format=kind, dpi=dpi, metadata=_METADATA[kind])
     return path
@@ -93,6 +108,7 @@ def save_figure(figure: Figure, path, *, dpi: int = 200) -> Path:
 def figure_bytes(figure: Figure, kind: str = "png", *, dpi: int = 110) -> bytes:
     """The figure encoded as PNG or SVG bytes (for widgets and notebooks)."""
     buffer = io.BytesIO()
+    _freeze_layout(figure)
     with house_style():
         figure.savefig(buffer, format=kind, dpi=dpi, metadata=_METADATA[kind])
     return buffer.getvalue()

@@ -211,7 +211,8 @@ class Explorer:
                                  widgets.HTML("<b>Noise band</b>"), c["band"], c["level"], c["replicates"], c["seed"],
                                  self.actions.box, widgets.HTML("<b>View</b>"), c["view_dim"], c["feature"],
                                  c["export"]])
-        tabs = widgets.Tab(children=[self.views["cloud"], self.views["diagram"], self.views["barcode"], self.table])
+        tabs = widgets.Tab(children=[self.views["cloud"], self.views["diagram"], self.views["barcode"], self.table],
+                           layout=widgets.Layout(min_width="560px", flex="1 1 auto"))
         for i, title in enumerate(("Cloud and features", "Diagram", "Barcode", "Feature table")):
             tabs.set_title(i, title)
         return widgets.VBox([widgets.HBox([settings, tabs]), self.log.widget])

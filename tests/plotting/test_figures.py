@@ -185,3 +185,13 @@ def test_bad_arguments_are_named():
         plot_barcode(diagrams, band=0.3)
     with pytest.raises(InvalidParameterError, match="'run'"):
         plot_cloud(diagrams)
+
+
+def test_svg_does_not_depend_on_what_was_saved_before(run, tmp_path):
+    from tdakit.plotting import save_figure
+
+    first = summary_figure(run)
+    save_figure(first, tmp_path / "first.pdf")
+    save_figure(first, tmp_path / "first.png", dpi=72)
+    fresh = summary_figure(run)
+    assert save_figure(first, tmp_path / "a.svg").read_bytes() == save_figure(fresh, tmp_path / "b.svg").read_bytes()
