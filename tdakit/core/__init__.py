@@ -19,8 +19,7 @@ from tdakit.core.tables import significance_table
 
 __all__ = [
     "Band", "Cloud", "Diagrams", "Landmarks", "METRICS", "Metric", "PermutationResult", "band_at_level",
-    "compute_diagrams",
-    "confidence_band", "densest_points", "diagram_distance", "knn_density", "knn_radius", "landmarks_from_indices",
-    "permutation_test", "persistence_landscape", "select_landmarks", "significance_table", "stability_constant",
-    "witness_edge_values",
+    "compute_diagrams", "confidence_band", "densest_points", "diagram_distance", "knn_density", "knn_radius",
+    "landmarks_from_indices", "permutation_test", "persistence_landscape", "select_landmarks", "significance_table",
+    "stability_constant", "witness_edge_values",
 ]

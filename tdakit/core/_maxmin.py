@@ -5,8 +5,9 @@ cells are singly linked lists in flat arrays, so memory is O(n). When landmark
 l joins, a cell j with radius r_j (its farthest member) and d(l_j, l) >= 2 r_j
 cannot lose a point to l, because for x in it
 d(x, l) >= d(l_j, l) - d(x, l_j) >= r_j >= d(x, l_j); only the other cells are
-scanned. The next landmark is the farthest cell member, ties to the lowest
-position, exactly as in the plain loop. Distances are in the metric's working
+scanned, and inside a scanned cell only the members farther than
+d(l_j, l) / 2 from l_j need a distance. The next landmark is the farthest cell member,
+ties to the lowest position, exactly as in the plain loop. Distances are in the metric's working
 space, where every metric tdakit embeds obeys the triangle inequality.
 """
 
@@ -79,6 +80,38 @@ def _kernel():
         return radius, far
 
     @njit(cache=True)
+    def split(work, rows, dist_to, nxt, owner, head, j, new, target, half, mode, p, box):
+        """Move the members of cell j that are nearer to landmark ``new`` into its cell.
+
+        A member within ``half`` (half the landmarks' distance, less a rounding margin) of
+        its landmark cannot be nearer to the new one: d(x, new) >= d(l_j, new) - d(x, l_j)
+        >= d(x, l_j). Only the others cost a distance. Returns the cell's new radius and
+        farthest member.
+        """
+        prev, i, kept_radius, kept_far = -1, head[j], -1.0, -1
+        while i != -1:
+            following = nxt[i]
+            moves = False
+            if dist_to[i] > half:
+                d = dist(work, i, target, mode, p, box)
+                moves = d < dist_to[i]
+            if moves:
+                if prev == -1:
+                    head[j] = following
+                else:
+                    nxt[prev] = following
+                nxt[i] = head[new]
+                head[new] = i
+                dist_to[i] = d
+                owner[i] = new
+            else:
+                prev = i
+                if dist_to[i] > kept_radius or (dist_to[i] == kept_radius and rows[i] < rows[kept_far]):
+                    kept_radius, kept_far = dist_to[i], i
+            i = following
+        return kept_radius, kept_far
+
+    @njit(cache=True)
     def maxmin(work, rows, first_pos, n_landmarks, mode, p, box, slack):
         n = rows.size
         dist_to = np.empty(n)
@@ -105,27 +138,12 @@ def _kernel():
             new = count
             chosen[new] = pick
             for j in range(count):
-                if radius[j] <= 0.0 or dist(work, chosen[j], chosen[new], mode, p, box) >= 2.0 * radius[j] * slack:
+                if radius[j] <= 0.0:
                     continue
-                prev, i, kept_radius, kept_far = -1, head[j], -1.0, -1
-                while i != -1:
-                    following = nxt[i]
-                    d = dist(work, i, chosen[new], mode, p, box)
-                    if d < dist_to[i]:
-                        if prev == -1:
-                            head[j] = following
-                        else:
-                            nxt[prev] = following
-                        nxt[i] = head[new]
-                        head[new] = i
-                        dist_to[i] = d
-                        owner[i] = new
-                    else:
-                        prev = i
-                        if dist_to[i] > kept_radius or (dist_to[i] == kept_radius and rows[i] < rows[kept_far]):
-                            kept_radius, kept_far = dist_to[i], i
-                    i = following
-                radius[j], far[j] = kept_radius, kept_far
+                between = dist(work, chosen[j], chosen[new], mode, p, box)
+                if between < 2.0 * radius[j] * slack:
+                    radius[j], far[j] = split(work, rows, dist_to, nxt, owner, head, j, new, chosen[new],
+                                              0.5 * between / slack, mode, p, box)
             radius[new], far[new] = scan(nxt, dist_to, rows, head[new])
             count += 1
         return chosen[:count], owner, dist_to
@@ -133,17 +151,47 @@ def _kernel():
     return maxmin
 
 
+@lru_cache(maxsize=1)
+def _curve_kernel():
+    """Compile (once) the Z-order layout: 30-bit codes and a two-pass radix sort, O(n)."""
+    from numba import njit
+
+    @njit(cache=True)
+    def order(work, low, scale, dims):
+        n = work.shape[0]
+        code = np.zeros(n, dtype=np.uint32)
+        for i in range(n):
+            value = 0
+            for axis in range(dims):
+                cell = int((work[i, axis] - low[axis]) * scale[axis])
+                for bit in range(10):
+                    value |= ((cell >> bit) & 1) << (bit * dims + axis)
+            code[i] = value
+        ranked = np.arange(n)
+        spare = np.empty(n, dtype=np.int64)
+        for shift in (0, 15):  # stable counting sort on 15 bits at a time
+            counts = np.zeros(32769, dtype=np.int64)
+            for i in range(n):
+                counts[((code[ranked[i]] >> shift) & 32767) + 1] += 1
+            for b in range(32768):
+                counts[b + 1] += counts[b]
+            for i in range(n):
+                key = (code[ranked[i]] >> shift) & 32767
+                spare[counts[key]] = ranked[i]
+                counts[key] += 1
+            ranked, spare = spare, ranked
+        return ranked
+
+    return order
+
+
 def _morton_order(work: NDArray[np.float64]) -> NDArray[np.intp]:
     """Order of the points along a Z-order curve of their first three coordinates (memory locality)."""
     dims = min(3, work.shape[1])
-    code = np.zeros(work.shape[0], dtype=np.uint32)
-    for axis in range(dims):  # one axis at a time: no (n, dims) temporary
-        column = work[:, axis]
-        low, high = column.min(), column.max()
-        cells = ((column - low) * (1023.0 / (high - low if high > low else 1.0))).astype(np.uint32)
-        for bit in range(10):
-            code |= ((cells >> np.uint32(bit)) & np.uint32(1)) << np.uint32(bit * dims + axis)
-    return np.argsort(code, kind="stable")
+    low = work[:, :dims].min(axis=0)
+    span = work[:, :dims].max(axis=0) - low
+    scale = np.where(span > 0, 1023.0 / np.where(span > 0, span, 1.0), 0.0)
+    return _curve_kernel()(work, low, scale, dims)
 
 
 def compiled_maxmin(cloud: Cloud, n_landmarks: int, rows: NDArray[np.intp], first: int):

@@ -56,6 +56,14 @@ class RunControls:
     def set_status(self, text: str) -> None:
         self.status.value = text
 
+    def guard(self, action) -> None:
+        """Run a callback's action; an error goes to the log pane and the status line, never into the void."""
+        try:
+            action()
+        except Exception as exc:
+            self.log.write(f"{type(exc).__name__}: {' '.join(str(exc).split())}")
+            self.set_status("<b>Failed</b> - see the log below.")
+
     def start(self, function, *args, on_done) -> BackgroundJob:
         self.cancel()
         self.progress.value, self.progress.max = 0, 1

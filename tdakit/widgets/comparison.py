@@ -35,7 +35,7 @@ class ComparisonPanel:
         }
         self.view = image()
         self.verdict = widgets.HTML()
-        self.controls["run"].on_click(lambda _: self._guard(self.start))
+        self.controls["run"].on_click(lambda _: self.actions.guard(self.start))
         self.root = widgets.VBox([widgets.HBox([
             widgets.VBox([widgets.HTML(f"<b>{names[0]}</b> ({cloud_a.n_points} points) against <b>{names[1]}</b> "
                                        f"({cloud_b.n_points} points)"), self.controls["pieces"],
@@ -43,12 +43,6 @@ class ComparisonPanel:
                           self.controls["seed"], self.actions.box]),
             widgets.VBox([self.view, self.verdict])]), self.log.widget])
 
-    def _guard(self, action) -> None:
-        try:
-            action()
-        except Exception as exc:
-            self.log.write(f"{type(exc).__name__}: {' '.join(str(exc).split())}")
-            self.actions.set_status("<b>Failed</b> - see the log below.")
 
     def start(self) -> None:
         c = self.controls

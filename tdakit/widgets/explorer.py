@@ -106,20 +106,14 @@ class Explorer:
 
     def _wire(self) -> None:
         c = self.controls
-        c["run"].on_click(lambda _: self._guard(self.start))
-        c["export"].on_click(lambda _: self._guard(self.export))
-        c["level"].observe(lambda _: self._guard(self._level_changed), names="value")
-        c["view_dim"].observe(lambda _: self._guard(self._dim_changed), names="value")
-        c["feature"].observe(lambda _: self._guard(self._redraw), names="value")
+        c["run"].on_click(lambda _: self.actions.guard(self.start))
+        c["export"].on_click(lambda _: self.actions.guard(self.export))
+        c["level"].observe(lambda _: self.actions.guard(self._level_changed), names="value")
+        c["view_dim"].observe(lambda _: self.actions.guard(self._dim_changed), names="value")
+        c["feature"].observe(lambda _: self.actions.guard(self._redraw), names="value")
         for name in ("sampling", "landmarks", "complex", "max_dim", "band", "replicates", "seed"):
             c[name].observe(lambda _: self._settings_changed(), names="value")
 
-    def _guard(self, action) -> None:
-        try:
-            action()
-        except Exception as exc:  # callbacks must never fail silently
-            self.log.write(f"{type(exc).__name__}: {' '.join(str(exc).split())}")
-            self.actions.set_status("<b>Failed</b> - see the log below.")
 
     # -- actions -----------------------------------------------------------------------------------
     def start(self) -> None:

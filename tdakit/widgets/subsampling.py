@@ -49,8 +49,8 @@ class SubsamplingPanel:
         }
         self.views = {"study": image(), "pair": image()}
         self.recommendation = widgets.HTML()
-        self.controls["run"].on_click(lambda _: self._guard(self.start))
-        self.controls["compare"].on_click(lambda _: self._guard(self.compare))
+        self.controls["run"].on_click(lambda _: self.actions.guard(self.start))
+        self.controls["compare"].on_click(lambda _: self.actions.guard(self.compare))
         self.root = self._layout()
 
     def current_options(self) -> StudyOptions:
@@ -58,12 +58,6 @@ class SubsamplingPanel:
         return dataclasses.replace(self.base, methods=tuple(c["methods"].value),
                                    counts=_parse_counts(c["counts"].value), n_seeds=c["seeds"].value)
 
-    def _guard(self, action) -> None:
-        try:
-            action()
-        except Exception as exc:
-            self.log.write(f"{type(exc).__name__}: {' '.join(str(exc).split())}")
-            self.actions.set_status("<b>Failed</b> - see the log below.")
 
     def start(self) -> None:
         self.actions.start(run_study, self.cloud, self.current_options(), self.controls["seed"].value,
