@@ -21,7 +21,8 @@ from numpy.typing import NDArray
 from tdakit.core import _geometry
 from tdakit.core.cloud import Cloud
 
-_SLACK = 1.0 + 1e-12  # prune only with a margin over rounding
+_SLACK = 1.0 + 1e-12
+STREAM_ABOVE_DIMS = 4  # prune only with a margin over rounding
 _EUCLIDEAN, _MANHATTAN, _CHEBYSHEV, _MINKOWSKI, _PERIODIC = range(5)
 
 
@@ -148,7 +149,58 @@ def _kernel():
             count += 1
         return chosen[:count], owner, dist_to
 
-    return maxmin
+    @njit(cache=True)
+    def maxmin_stream(work, rows, first_pos, n_landmarks, mode, p, box, slack):
+        """The same selection with cells as labels instead of lists: one sequential pass per landmark.
+
+        In many dimensions the cell test rarely prunes, and following the lists costs more than
+        streaming; the members ruled out by the half-distance test still need no distance.
+        """
+        n = rows.size
+        dist_to = np.empty(n)
+        owner = np.zeros(n, dtype=np.int64)
+        radius = np.full(n_landmarks, -1.0)
+        far = np.full(n_landmarks, -1, dtype=np.int64)
+        half = np.empty(n_landmarks)
+        chosen = np.empty(n_landmarks, dtype=np.int64)
+        chosen[0] = first_pos
+        for i in range(n):
+            dist_to[i] = dist(work, i, first_pos, mode, p, box)
+            if dist_to[i] > radius[0] or (dist_to[i] == radius[0] and rows[i] < rows[far[0]]):
+                radius[0], far[0] = dist_to[i], i
+        count = 1
+        while count < n_landmarks:
+            best, pick = -1.0, -1
+            for j in range(count):
+                if radius[j] > best or (radius[j] == best and rows[far[j]] < rows[pick]):
+                    best, pick = radius[j], far[j]
+            if best <= 0.0:
+                break
+            new = count
+            chosen[new] = pick
+            for j in range(count):  # half < 0 marks a cell the new landmark cannot touch
+                between = dist(work, chosen[j], pick, mode, p, box)
+                touched = radius[j] > 0.0 and between < 2.0 * radius[j] * slack
+                half[j] = 0.5 * between / slack if touched else -1.0
+                if touched:
+                    radius[j], far[j] = -1.0, -1
+            for i in range(n):
+                j = owner[i]
+                if half[j] < 0.0:
+                    continue
+                if dist_to[i] > half[j]:
+                    d = dist(work, i, pick, mode, p, box)
+                    if d < dist_to[i]:
+                        dist_to[i], owner[i] = d, new
+                        if d > radius[new] or (d == radius[new] and rows[i] < rows[far[new]]):
+                            radius[new], far[new] = d, i
+                        continue
+                if dist_to[i] > radius[j] or (dist_to[i] == radius[j] and rows[i] < rows[far[j]]):
+                    radius[j], far[j] = dist_to[i], i
+            count += 1
+        return chosen[:count], owner, dist_to
+
+    return maxmin, maxmin_stream
 
 
 @lru_cache(maxsize=1)
@@ -214,7 +266,9 @@ def compiled_maxmin(cloud: Cloud, n_landmarks: int, rows: NDArray[np.intp], firs
     keys = candidates[order]
     first_pos = int(np.flatnonzero(keys == first)[0])
     laid_out = work[keys]  # the one copy of the coordinates, in curve order
-    chosen, owner, distance = kernel(laid_out, keys, first_pos, int(n_landmarks), mode, p, box, _SLACK)
+    # Lists win while the cell test prunes (few coordinates); streaming wins beyond (measured crossover).
+    routine = kernel[0] if work.shape[1] <= STREAM_ABOVE_DIMS else kernel[1]
+    chosen, owner, distance = routine(laid_out, keys, first_pos, int(n_landmarks), mode, p, box, _SLACK)
     del laid_out
     back = np.empty_like(order)
     back[order] = np.arange(order.size)

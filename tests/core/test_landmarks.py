@@ -167,3 +167,28 @@ def test_core_maxmin_may_start_outside_the_core():
     cloud = tdakit.load_cloud(points)
     marks = tdakit.select_landmarks(cloud, 8, method="core_maxmin", start=200, rng=0)
     assert marks.indices[0] == 200 and not np.isin(200, marks.indices[1:])
+
+
+@pytest.mark.filterwarnings("ignore::tdakit.errors.DuplicatePointsWarning")
+@pytest.mark.parametrize("metric", ["euclidean", "manhattan", "chebyshev", "periodic"])
+@pytest.mark.parametrize("dims", [2, 6])
+def test_list_and_streaming_kernels_agree_with_the_plain_loop(metric, dims, monkeypatch, global_seed):
+    # Integer coordinates make many exact ties; the plain loop (de Silva & Carlsson 2004, ties to the lowest
+    # index) is the reference for both compiled routines.
+    from tdakit.core import _maxmin
+
+    points = np.random.default_rng(global_seed).integers(0, 4, (300, dims)).astype(float)
+    kwargs = {"box": 4.0} if metric == "periodic" else {}
+    cloud = tdakit.load_cloud(points, metric=metric, **kwargs)
+    count = min(25, cloud.n_distinct)
+    results = []
+    for threshold in (99, 0):  # 99: always lists; 0: always streaming
+        monkeypatch.setattr(_maxmin, "STREAM_ABOVE_DIMS", threshold)
+        results.append(tdakit.select_landmarks(cloud, count, start=3))
+    monkeypatch.setattr(_maxmin, "_kernel", lambda: None)
+    plain = tdakit.select_landmarks(cloud, count, start=3)
+    for marks in results:
+        np.testing.assert_array_equal(marks.indices, plain.indices)
+        # Nearest landmarks may differ on exact ties between two landmarks; the distances may not.
+        np.testing.assert_allclose(marks.distance_to_nearest, plain.distance_to_nearest, rtol=1e-12, atol=1e-12)
+        assert marks.coverage_radius == pytest.approx(plain.coverage_radius, rel=1e-12)
