@@ -81,6 +81,15 @@ def _kernel():
         return radius, far
 
     @njit(cache=True)
+    def farthest(radius, far, rows, count):
+        """The farthest point over all cells (the next landmark), ties to the lowest cloud index."""
+        best, pick = -1.0, -1
+        for j in range(count):
+            if radius[j] > best or (radius[j] == best and rows[far[j]] < rows[pick]):
+                best, pick = radius[j], far[j]
+        return best, pick
+
+    @njit(cache=True)
     def split(work, rows, dist_to, nxt, owner, head, j, new, target, half, mode, p, box):
         """Move the members of cell j that are nearer to landmark ``new`` into its cell.
 
@@ -130,10 +139,7 @@ def _kernel():
         radius[0], far[0] = scan(nxt, dist_to, rows, head[0])
         count = 1
         while count < n_landmarks:
-            best, pick = -1.0, -1
-            for j in range(count):
-                if radius[j] > best or (radius[j] == best and rows[far[j]] < rows[pick]):
-                    best, pick = radius[j], far[j]
+            best, pick = farthest(radius, far, rows, count)
             if best <= 0.0:
                 break
             new = count
@@ -170,10 +176,7 @@ def _kernel():
                 radius[0], far[0] = dist_to[i], i
         count = 1
         while count < n_landmarks:
-            best, pick = -1.0, -1
-            for j in range(count):
-                if radius[j] > best or (radius[j] == best and rows[far[j]] < rows[pick]):
-                    best, pick = radius[j], far[j]
+            best, pick = farthest(radius, far, rows, count)
             if best <= 0.0:
                 break
             new = count
