@@ -21,6 +21,7 @@ __all__ = ["diagram_distance", "as_diagram"]
 _FN = "diagram_distance"
 # Above this many useful point pairs the sparse matching loses to a dense network simplex
 # (measured: 4.3 M pairs for 3,000 points far from the diagonal).
+DENSE_ASSIGNMENT_LIMIT = 2000  # points in both diagrams: solve densely up to here (32 MB, about a second)
 SPARSE_PAIR_LIMIT = 2_000_000
 DENSE_CELL_LIMIT = 2.6e8  # about 16,000 x 16,000: ~2 GiB of cost matrix and plan
 
@@ -209,14 +210,34 @@ def _wasserstein_power(a, b, order, ground) -> float:
     left = np.concatenate((rows, np.arange(n), n + np.arange(m), n + cols))
     right = np.concatenate((cols, m + np.arange(n), np.arange(m), m + rows))
     weight = np.concatenate((cost, cost_a, cost_b, np.zeros(rows.size)))
+    if n + m <= DENSE_ASSIGNMENT_LIMIT:
+        return _dense_assignment(n, m, rows, cols, cost, cost_a, cost_b)
     # scipy drops zero weights, so shift all by the same amount (every perfect matching has n + m edges,
-    # same optimum). The shift must be tiny: shifting by max(weight) made scipy's LAPJVsp cycle forever on
-    # tied H0 diagrams (found with a 20- vs 1,200-point pair; kept as a regression test).
+    # same optimum). Shifting by max(weight) made scipy's LAPJVsp cycle forever on tied H0 diagrams; small
+    # problems take the dense solver below for the same reason (scipy gh-17269 reports other endless loops).
     offset = 1e-300
     graph = sp.csr_matrix((weight + offset, (left, right)), shape=(n + m, n + m))
     row_ind, col_ind = min_weight_full_bipartite_matching(graph)
     chosen = np.asarray(graph[row_ind, col_ind]).ravel() - offset
     return float(np.maximum(chosen, 0.0).sum())
+
+
+def _dense_assignment(n, m, rows, cols, cost, cost_a, cost_b) -> float:
+    """The augmented (n+m) x (n+m) assignment problem solved densely (scipy's shortest augmenting path).
+
+    Pairs outside the useful ones, and off-diagonal projections, cost more than sending every
+    point to the diagonal, so no optimum uses them; diagonal copies match each other for free.
+    """
+    from scipy.optimize import linear_sum_assignment
+
+    forbidden = float(cost_a.sum() + cost_b.sum()) + 1.0
+    matrix = np.full((n + m, n + m), forbidden)
+    matrix[rows, cols] = cost
+    matrix[np.arange(n), m + np.arange(n)] = cost_a
+    matrix[n + np.arange(m), np.arange(m)] = cost_b
+    matrix[n:, m:] = 0.0
+    row_ind, col_ind = linear_sum_assignment(matrix)
+    return float(matrix[row_ind, col_ind].sum())
 
 
 def _dense_transport(a, b, cost_a, cost_b, order, ground) -> float:
