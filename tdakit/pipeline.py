@@ -11,6 +11,7 @@ import platform
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from functools import cached_property
 from pathlib import Path
 
 import numpy as np
@@ -77,9 +78,12 @@ class RunResult:
         """Every point lies within this distance of a landmark (0 without landmarks)."""
         return 0.0 if self.landmarks is None else self.landmarks.coverage_radius
 
-    @property
+    @cached_property
     def table(self):
-        """Every class with its significance, as a pandas DataFrame (see :func:`significance_table`)."""
+        """Every class with its significance, as a pandas DataFrame (see :func:`significance_table`).
+
+        Built once per run (figures and widgets read it repeatedly); do not modify it in place.
+        """
         return significance_table(self.diagrams, self.band)
 
     def landmark_coordinates(self, indices) -> NDArray[np.float64]:

@@ -9,6 +9,7 @@ smallest landmark count from which the significant features stop changing.
 
 from __future__ import annotations
 
+import dataclasses
 import time
 import warnings
 from dataclasses import dataclass, field
@@ -20,8 +21,7 @@ from tdakit._memory import PeakMemory
 from tdakit._validation import fail
 from tdakit.config import StudyOptions
 from tdakit.core.cloud import Cloud
-from tdakit.core.confidence import _check_subsample_allowed as check_subsample_allowed
-from tdakit.core.confidence import confidence_band, hausdorff_level, subsample_band
+from tdakit.core.confidence import check_subsample_allowed, confidence_band, hausdorff_level, subsample_band
 from tdakit.core.diagrams import Diagrams
 from tdakit.core.distances import diagram_distance
 from tdakit.core.filtrations import compute_diagrams, stability_constant
@@ -225,7 +225,7 @@ def _reference(cloud, options, seed_sequence) -> dict:
 
 
 def _select(cloud, options, method, count, rng):
-    sampling = type(options.sampling)(**{**options.sampling.to_dict(), "method": method, "n_landmarks": count})
+    sampling = dataclasses.replace(options.sampling, method=method, n_landmarks=count)
     return select_landmarks(cloud, count, method=method, rng=rng, **sampling.landmark_options())
 
 
@@ -293,6 +293,8 @@ def _cells_frame(grid, rows, max_dim, pd):
 
 
 def _summarize(cells, max_dim):
+    import pandas as pd
+
     dims = range(max_dim + 1)
     rows = []
     for (method, count), group in cells.groupby(["method", "n_landmarks"], sort=False):
@@ -307,8 +309,6 @@ def _summarize(cells, max_dim):
         counts = group[[f"significant_H{k}" for k in dims]]
         row["stable"] = bool(counts.notna().all().all() and (counts.nunique() == 1).all())
         rows.append(row)
-    import pandas as pd
-
     return pd.DataFrame(rows)
 
 

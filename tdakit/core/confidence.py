@@ -203,7 +203,7 @@ def _hausdorff_task(payload, rng) -> float:
 
 
 def _subsample_band(cloud, opts, run, bandwidth, resolution) -> Band:
-    _check_subsample_allowed(cloud, opts["filtration"], opts["method"])
+    check_subsample_allowed(cloud, opts["filtration"], opts["method"])
     n = cloud.n_points
     size = opts["subsample_size"] or max(1, int(n / np.log(n)))
     diagrams = _reference(cloud, opts)
@@ -214,7 +214,8 @@ def _subsample_band(cloud, opts, run, bandwidth, resolution) -> Band:
                           seed=opts["seed"], subsample_size=size)
 
 
-def _check_subsample_allowed(cloud, filtration, method, name="method", function=_FN) -> None:
+def check_subsample_allowed(cloud, filtration, method, name="method", function=_FN) -> None:
+    """Refuse the subsampling band where no Hausdorff stability constant applies."""
     if stability_constant(filtration) is None or not cloud.metric.is_metric:
         raise fail(name, function, f"not 'subsample' with filtration {filtration!r} and metric "
                    f"{cloud.metric.name!r} (it needs a Hausdorff stability constant: rips or alpha on a true metric)",

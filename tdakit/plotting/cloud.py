@@ -98,7 +98,9 @@ def _features(ax, rows, run, transform):
         where = transform(run.landmark_coordinates(vertices))
         artist = ax.scatter(*where.T, s=40, facecolors="none", edgecolors=FEATURE_COLOR, linewidths=1.2,
                             marker="o", label="feature vertices" if number == 1 else None)
-        ax.annotate(f"{number}", where.mean(axis=0)[:2], color=FEATURE_COLOR, fontsize=7, fontweight="bold") \
-            if where.shape[1] == 2 else ax.text(*where.mean(axis=0), f"{number}", color=FEATURE_COLOR, fontsize=7)
+        if where.shape[1] == 2:
+            ax.annotate(f"{number}", where.mean(axis=0), color=FEATURE_COLOR, fontsize=7, fontweight="bold")
+        else:
+            ax.text(*where.mean(axis=0), f"{number}", color=FEATURE_COLOR, fontsize=7)
         drawn.append((row, artist))
     return drawn
