@@ -1,14 +1,23 @@
 """Maxmin (farthest point) selection with triangle-inequality pruning, compiled with numba.
 
-Every candidate keeps its nearest landmark (its cell) and the distance to it;
-cells are singly linked lists in flat arrays, so memory is O(n). When landmark
-l joins, a cell j with radius r_j (its farthest member) and d(l_j, l) >= 2 r_j
-cannot lose a point to l, because for x in it
-d(x, l) >= d(l_j, l) - d(x, l_j) >= r_j >= d(x, l_j); only the other cells are
-scanned, and inside a scanned cell only the members farther than
-d(l_j, l) / 2 from l_j need a distance. The next landmark is the farthest cell member,
-ties to the lowest position, exactly as in the plain loop. Distances are in the metric's working
-space, where every metric tdakit embeds obeys the triangle inequality.
+Every candidate keeps its nearest landmark (its cell) and the distance to it. When
+landmark l joins, a cell j with radius r_j (its farthest member) and
+d(l_j, l) >= 2 r_j cannot lose a point to l, because for x in it
+d(x, l) >= d(l_j, l) - d(x, l_j) >= r_j >= d(x, l_j); inside a cell that can, only
+the members farther than d(l_j, l) / 2 from l_j need a distance. The next landmark is
+the farthest point, ties to the lowest candidate position, exactly as in the plain
+loop. Distances are in the metric's working space, where every metric tdakit embeds
+obeys the triangle inequality.
+
+Two layouts. With few coordinates (where the cell test prunes most of the cloud)
+each cell's members sit in a few contiguous runs of a private copy of the
+coordinates, so a scanned cell is read sequentially and a run whose farthest member
+is within the half distance is skipped unread. With many coordinates almost every
+cell is touched, and each new landmark makes one sequential pass over all points;
+for the Euclidean metric that pass reads a float32 copy laid out in blocks of
+points, and only points whose float32 distance is within its proven rounding bound
+of their current distance get the exact float64 distance, so the choices stay those
+of the float64 loop.
 """
 
 from __future__ import annotations
@@ -21,8 +30,11 @@ from numpy.typing import NDArray
 from tdakit.core import _geometry
 from tdakit.core.cloud import Cloud
 
-_SLACK = 1.0 + 1e-12
-STREAM_ABOVE_DIMS = 4  # prune only with a margin over rounding
+_SLACK = 1.0 + 1e-12  # prune only with a margin over rounding
+STREAM_ABOVE_DIMS = 4
+_LEAF_SIZE, _GROUP = 64, 32  # points per box, boxes per group
+_BLOCK = 16  # points per float32 block: one vector register row per coordinate
+_FLOAT32_SPREAD_LIMIT = 1e15  # beyond this, float32 squares could overflow: stream in float64
 _EUCLIDEAN, _MANHATTAN, _CHEBYSHEV, _MINKOWSKI, _PERIODIC = range(5)
 
 
@@ -43,17 +55,18 @@ def distance_mode(cloud: Cloud) -> tuple[int, float, NDArray[np.float64]]:
 
 @lru_cache(maxsize=1)
 def _kernel():
-    """Compile (once) and return the numba kernel, or None when numba is not installed."""
+    """Compile (once) and return the numba routines, or None when numba is not installed."""
     try:
         from numba import njit
     except ImportError:
         return None
 
-    @njit(cache=True, fastmath=False)
-    def dist(work, a, b, mode, p, box):
+    @njit(cache=True, fastmath=False, inline="always")
+    def dist(a, i, b, j, mode, p, box):
+        """Working-space distance between row i of ``a`` and row j of ``b``, summed in coordinate order."""
         total = 0.0
-        for k in range(work.shape[1]):
-            gap = abs(work[a, k] - work[b, k])
+        for k in range(a.shape[1]):
+            gap = abs(a[i, k] - b[j, k])
             if mode == _PERIODIC:
                 gap = min(gap, box[k] - gap)
             if mode == _EUCLIDEAN or mode == _PERIODIC:
@@ -71,182 +84,351 @@ def _kernel():
         return total
 
     @njit(cache=True)
-    def scan(nxt, dist_to, rows, start):
-        """Radius and farthest member (lowest cloud index on ties) of the list starting at ``start``."""
-        radius, far, i = -1.0, -1, start
-        while i != -1:
-            if dist_to[i] > radius or (dist_to[i] == radius and rows[i] < rows[far]):
-                radius, far = dist_to[i], i
-            i = nxt[i]
-        return radius, far
-
-    @njit(cache=True)
-    def farthest(radius, far, rows, count):
-        """The farthest point over all cells (the next landmark), ties to the lowest cloud index."""
+    def farthest(radius, far, rank, count):
+        """The farthest point over all cells (the next landmark), ties to the lowest rank."""
         best, pick = -1.0, -1
         for j in range(count):
-            if radius[j] > best or (radius[j] == best and rows[far[j]] < rows[pick]):
+            if radius[j] > best or (radius[j] == best and rank[far[j]] < rank[pick]):
                 best, pick = radius[j], far[j]
         return best, pick
 
     @njit(cache=True)
-    def split(work, rows, dist_to, nxt, owner, head, j, new, target, half, mode, p, box):
-        """Move the members of cell j that are nearer to landmark ``new`` into its cell.
+    def farthest_position(radius, far, count):
+        """``farthest`` when ranks are the positions themselves."""
+        best, pick = -1.0, -1
+        for j in range(count):
+            if radius[j] > best or (radius[j] == best and far[j] < pick):
+                best, pick = radius[j], far[j]
+        return best, pick
 
-        A member within ``half`` (half the landmarks' distance, less a rounding margin) of
-        its landmark cannot be nearer to the new one: d(x, new) >= d(l_j, new) - d(x, l_j)
-        >= d(x, l_j). Only the others cost a distance. Returns the cell's new radius and
-        farthest member.
-        """
-        prev, i, kept_radius, kept_far = -1, head[j], -1.0, -1
-        while i != -1:
-            following = nxt[i]
-            moves = False
-            if dist_to[i] > half:
-                d = dist(work, i, target, mode, p, box)
-                moves = d < dist_to[i]
-            if moves:
-                if prev == -1:
-                    head[j] = following
-                else:
-                    nxt[prev] = following
-                nxt[i] = head[new]
-                head[new] = i
-                dist_to[i] = d
-                owner[i] = new
-            else:
-                prev = i
-                if dist_to[i] > kept_radius or (dist_to[i] == kept_radius and rows[i] < rows[kept_far]):
-                    kept_radius, kept_far = dist_to[i], i
-            i = following
-        return kept_radius, kept_far
+    @njit(cache=True, inline="always")
+    def swap(points, rank, a, b):
+        for k in range(points.shape[1]):
+            points[a, k], points[b, k] = points[b, k], points[a, k]
+        rank[a], rank[b] = rank[b], rank[a]
 
     @njit(cache=True)
-    def maxmin(work, rows, first_pos, n_landmarks, mode, p, box, slack):
-        n = rows.size
-        dist_to = np.empty(n)
-        nxt = np.empty(n, dtype=np.int64)
-        owner = np.zeros(n, dtype=np.int64)
-        head = np.full(n_landmarks, -1, dtype=np.int64)
-        radius = np.full(n_landmarks, -1.0)
-        far = np.full(n_landmarks, -1, dtype=np.int64)
-        chosen = np.empty(n_landmarks, dtype=np.int64)  # positions in work
-        chosen[0] = first_pos
+    def bounds(points, lo, hi, low, high):
+        """Bounding box of the slots [lo, hi) into ``low`` and ``high``."""
+        for k in range(points.shape[1]):
+            low[k], high[k] = points[lo, k], points[lo, k]
+        for i in range(lo + 1, hi):
+            for k in range(points.shape[1]):
+                low[k] = min(low[k], points[i, k])
+                high[k] = max(high[k], points[i, k])
+
+    @njit(cache=True)
+    def split(points, rank, lo, hi, axis, cut):
+        """Reorder the slots [lo, hi) so that coordinates below ``cut`` on ``axis`` come first
+        (two pointers, swapping only misplaced pairs). Returns the first slot of the upper side."""
+        i, j = lo, hi - 1
+        while True:
+            while i <= j and points[i, axis] < cut:
+                i += 1
+            while i <= j and points[j, axis] >= cut:
+                j -= 1
+            if i >= j:
+                return i
+            swap(points, rank, i, j)
+            i += 1
+            j -= 1
+
+    @njit(cache=True)
+    def build_leaves(points, rank, leaf_size):
+        """Cut the points (in place) into boxes of at most ``leaf_size``, halving the widest side.
+
+        The halves inherit their parent's box cut in two; a box is measured again only after
+        a lopsided cut (at most 1/16 of its points on one side), so that outliers do not cost
+        a level each. Returns the leaves' first slots (plus the end) in slot order; leaves that
+        would need more than 48 cuts (points spread over many orders of magnitude) stay larger.
+        """
+        n, dims = points.shape
+        first = [0]
+        first.clear()
+        depth_cap = 48
+        todo = np.empty((depth_cap + 2, 3), dtype=np.int64)  # depth-first: at most one pending node per level
+        low, high = np.empty((depth_cap + 2, dims)), np.empty((depth_cap + 2, dims))
+        bounds(points, 0, n, low[0], high[0])
+        todo[0, 0], todo[0, 1], todo[0, 2] = 0, n, 0
+        size = 1
+        while size > 0:
+            size -= 1
+            lo, hi, depth = todo[size, 0], todo[size, 1], todo[size, 2]
+            axis = np.argmax(high[size] - low[size])
+            cut = 0.5 * (low[size, axis] + high[size, axis])
+            if hi - lo <= leaf_size or depth >= depth_cap or not (low[size, axis] < cut <= high[size, axis]):
+                first.append(lo)
+                continue
+            middle = split(points, rank, lo, hi, axis, cut)
+            # The upper half waits in this node's row; the lower half, in the next, is handled first.
+            low[size + 1], high[size + 1] = low[size], high[size]
+            high[size + 1, axis], low[size, axis] = cut, cut
+            if 16 * min(middle - lo, hi - middle) <= hi - lo:
+                if middle > lo:
+                    bounds(points, lo, middle, low[size + 1], high[size + 1])
+                if hi > middle:
+                    bounds(points, middle, hi, low[size], high[size])
+            if hi > middle:
+                todo[size, 0], todo[size, 1], todo[size, 2] = middle, hi, depth + 1
+                size += 1
+            else:  # no upper half: the lower half's box moves down a row
+                low[size], high[size] = low[size + 1], high[size + 1]
+            if middle > lo:
+                todo[size, 0], todo[size, 1], todo[size, 2] = lo, middle, depth + 1
+                size += 1
+        first.append(n)
+        return np.array(first, dtype=np.int64)
+
+    @njit(cache=True, inline="always")
+    def box_gap(low, high, node, marks, new, mode, p, box):
+        """A lower bound on the distance from landmark ``new`` to any point in the node's box."""
+        total = 0.0
+        for k in range(low.shape[1]):
+            y = marks[new, k]
+            gap = max(low[node, k] - y, y - high[node, k], 0.0)
+            if mode == _PERIODIC and gap > 0.0:
+                gap = min(gap, box[k] - max(abs(y - low[node, k]), abs(y - high[node, k])))
+            if mode == _EUCLIDEAN or mode == _PERIODIC:
+                total += gap * gap
+            elif mode == _MANHATTAN:
+                total += gap
+            elif mode == _CHEBYSHEV:
+                total = max(total, gap)
+            else:
+                total += gap**p
+        if mode == _EUCLIDEAN or mode == _PERIODIC:
+            return np.sqrt(total)
+        if mode == _MINKOWSKI:
+            return total ** (1.0 / p)
+        return total
+
+    @njit(cache=True)
+    def scan_leaf(points, rank, to_mark, owner, lo, hi, marks, new, half, mode, p, box):
+        """Give the leaf's points nearer to landmark ``new`` to it; the leaf's radius and farthest slot.
+
+        A point within ``half[j]`` of its landmark j cannot be nearer to the new one
+        (d(x, new) >= d(l_j, new) - d(x, l_j) >= d(x, l_j)) and costs no distance.
+        """
+        best, pick = -1.0, -1
+        for i in range(lo, hi):
+            if to_mark[i] > half[owner[i]]:
+                d = dist(points, i, marks, new, mode, p, box)
+                if d < to_mark[i]:
+                    to_mark[i], owner[i] = d, new
+            if to_mark[i] > best or (to_mark[i] == best and rank[i] < rank[pick]):
+                best, pick = to_mark[i], i
+        return best, pick
+
+    @njit(cache=True)
+    def leaf_boxes(points, first, group):
+        """Boxes of the leaves and of groups of ``group`` consecutive leaves."""
+        n_leaves, dims = first.size - 1, points.shape[1]
+        n_groups = (n_leaves + group - 1) // group
+        low, high = np.empty((n_leaves, dims)), np.empty((n_leaves, dims))
+        group_low, group_high = np.empty((n_groups, dims)), np.empty((n_groups, dims))
+        for leaf in range(n_leaves):
+            bounds(points, first[leaf], first[leaf + 1], low[leaf], high[leaf])
+        for g in range(n_groups):
+            bounds(low, g * group, min(n_leaves, (g + 1) * group), group_low[g], group_high[g])
+            for k in range(dims):
+                for leaf in range(g * group, min(n_leaves, (g + 1) * group)):
+                    group_high[g, k] = max(group_high[g, k], high[leaf, k])
+        return low, high, group_low, group_high
+
+    @njit(cache=True)
+    def maxmin_tree(points, rank, first, n_landmarks, leaf_size, group, mode, p, box, slack):
+        """Maxmin over ``points`` (a private copy, reordered in place into boxes), from rank ``first``.
+
+        A box whose gap to the new landmark is at least the largest distance of its points
+        to their landmarks cannot lose a point; every box keeps that largest distance and
+        its point, so the next landmark is the best of the group maxima. Returns the chosen
+        ranks, and each slot's landmark and distance.
+        """
+        n, dims = points.shape
+        starts = build_leaves(points, rank, leaf_size)
+        low, high, group_low, group_high = leaf_boxes(points, starts, group)
+        n_leaves, n_groups = starts.size - 1, group_low.shape[0]
+        to_mark = np.empty(n)
+        owner = np.zeros(n, dtype=np.int32)
+        marks = np.empty((n_landmarks, dims))
+        chosen = np.empty(n_landmarks, dtype=np.int64)
+        half = np.full(n_landmarks, -1.0)  # no point is within -1 of its landmark: all get a distance
+        leaf_r, leaf_f = np.empty(n_leaves), np.empty(n_leaves, dtype=np.int64)
+        group_r, group_f = np.full(n_groups, -1.0), np.full(n_groups, -1, dtype=np.int64)
+        slot = 0
         for i in range(n):
-            dist_to[i] = dist(work, i, first_pos, mode, p, box)
-            nxt[i] = i + 1 if i + 1 < n else -1
-        head[0] = 0 if n > 0 else -1
-        radius[0], far[0] = scan(nxt, dist_to, rows, head[0])
-        count = 1
+            to_mark[i] = np.inf
+            if rank[i] == first:
+                slot = i
+        count = 0
         while count < n_landmarks:
-            best, pick = farthest(radius, far, rows, count)
+            new = count
+            marks[new] = points[slot]
+            chosen[new] = rank[slot]
+            for j in range(new):
+                half[j] = 0.5 * dist(marks, j, marks, new, mode, p, box) / slack
+            for g in range(n_groups):
+                if new > 0 and box_gap(group_low, group_high, g, marks, new, mode, p, box) >= group_r[g] * slack:
+                    continue
+                best, pick = -1.0, -1
+                for leaf in range(g * group, min(n_leaves, (g + 1) * group)):
+                    if new == 0 or box_gap(low, high, leaf, marks, new, mode, p, box) < leaf_r[leaf] * slack:
+                        leaf_r[leaf], leaf_f[leaf] = scan_leaf(points, rank, to_mark, owner, starts[leaf],
+                                                               starts[leaf + 1], marks, new, half, mode, p, box)
+                    if leaf_r[leaf] > best or (leaf_r[leaf] == best and rank[leaf_f[leaf]] < rank[pick]):
+                        best, pick = leaf_r[leaf], leaf_f[leaf]
+                group_r[g], group_f[g] = best, pick
+            count += 1
+            best, slot = farthest(group_r, group_f, rank, n_groups)
             if best <= 0.0:
                 break
-            new = count
-            chosen[new] = pick
-            for j in range(count):
-                if radius[j] <= 0.0:
-                    continue
-                between = dist(work, chosen[j], chosen[new], mode, p, box)
-                if between < 2.0 * radius[j] * slack:
-                    radius[j], far[j] = split(work, rows, dist_to, nxt, owner, head, j, new, chosen[new],
-                                              0.5 * between / slack, mode, p, box)
-            radius[new], far[new] = scan(nxt, dist_to, rows, head[new])
-            count += 1
-        return chosen[:count], owner, dist_to
+        return chosen[:count], owner, to_mark
 
     @njit(cache=True)
-    def maxmin_stream(work, rows, first_pos, n_landmarks, mode, p, box, slack):
-        """The same selection with cells as labels instead of lists: one sequential pass per landmark.
+    def unshuffle(owner, to_mark, rank):
+        """Each candidate's landmark and distance, in candidate order (the reordered copy already freed)."""
+        nearest = np.empty(rank.size, dtype=np.int64)
+        distance = np.empty(rank.size)
+        for i in range(rank.size):
+            nearest[rank[i]] = owner[i]
+            distance[rank[i]] = to_mark[i]
+        return nearest, distance
 
-        In many dimensions the cell test rarely prunes, and following the lists costs more than
-        streaming; the members ruled out by the half-distance test still need no distance.
-        """
-        n = rows.size
-        dist_to = np.empty(n)
+    @njit(cache=True)
+    def half_distances(marks, radius, far, half, count, new, mode, p, box, slack):
+        """Half the distance from each cell's landmark to the new one; -1 for cells it cannot touch."""
+        for j in range(count):
+            between = dist(marks, j, marks, new, mode, p, box)
+            touched = radius[j] > 0.0 and between < 2.0 * radius[j] * slack
+            half[j] = 0.5 * between / slack if touched else -1.0
+            if touched:
+                radius[j], far[j] = -1.0, -1
+
+    @njit(cache=True)
+    def maxmin_stream(points, first, n_landmarks, mode, p, box, slack):
+        """The selection with cells as labels: one sequential pass per landmark, ties to the lowest position."""
+        n = points.shape[0]
+        to_mark = np.empty(n)
         owner = np.zeros(n, dtype=np.int64)
         radius = np.full(n_landmarks, -1.0)
         far = np.full(n_landmarks, -1, dtype=np.int64)
         half = np.empty(n_landmarks)
+        marks = np.empty((n_landmarks, points.shape[1]))
         chosen = np.empty(n_landmarks, dtype=np.int64)
-        chosen[0] = first_pos
+        chosen[0], marks[0] = first, points[first]
         for i in range(n):
-            dist_to[i] = dist(work, i, first_pos, mode, p, box)
-            if dist_to[i] > radius[0] or (dist_to[i] == radius[0] and rows[i] < rows[far[0]]):
-                radius[0], far[0] = dist_to[i], i
+            to_mark[i] = dist(points, i, marks, 0, mode, p, box)
+            if to_mark[i] > radius[0]:
+                radius[0], far[0] = to_mark[i], i
         count = 1
         while count < n_landmarks:
-            best, pick = farthest(radius, far, rows, count)
+            best, pick = farthest_position(radius, far, count)
             if best <= 0.0:
                 break
             new = count
-            chosen[new] = pick
-            for j in range(count):  # half < 0 marks a cell the new landmark cannot touch
-                between = dist(work, chosen[j], pick, mode, p, box)
-                touched = radius[j] > 0.0 and between < 2.0 * radius[j] * slack
-                half[j] = 0.5 * between / slack if touched else -1.0
-                if touched:
-                    radius[j], far[j] = -1.0, -1
+            chosen[new], marks[new] = pick, points[pick]
+            half_distances(marks, radius, far, half, count, new, mode, p, box, slack)
             for i in range(n):
                 j = owner[i]
                 if half[j] < 0.0:
                     continue
-                if dist_to[i] > half[j]:
-                    d = dist(work, i, pick, mode, p, box)
-                    if d < dist_to[i]:
-                        dist_to[i], owner[i] = d, new
-                        if d > radius[new] or (d == radius[new] and rows[i] < rows[far[new]]):
+                if to_mark[i] > half[j]:
+                    d = dist(points, i, marks, new, mode, p, box)
+                    if d < to_mark[i]:
+                        to_mark[i], owner[i] = d, new
+                        if d > radius[new]:
                             radius[new], far[new] = d, i
                         continue
-                if dist_to[i] > radius[j] or (dist_to[i] == radius[j] and rows[i] < rows[far[j]]):
-                    radius[j], far[j] = dist_to[i], i
+                if to_mark[i] > radius[j]:
+                    radius[j], far[j] = to_mark[i], i
             count += 1
-        return chosen[:count], owner, dist_to
-
-    return maxmin, maxmin_stream
-
-
-@lru_cache(maxsize=1)
-def _curve_kernel():
-    """Compile (once) the Z-order layout: 30-bit codes and a two-pass radix sort, O(n)."""
-    from numba import njit
+        return chosen[:count], owner, to_mark
 
     @njit(cache=True)
-    def order(work, low, scale, dims):
-        n = work.shape[0]
-        code = np.zeros(n, dtype=np.uint32)
+    def pack_single(points, center):
+        """``points - center`` in float32, in blocks of _BLOCK points (shape (blocks, dims, _BLOCK)),
+        and the largest float64 norm of ``points - center``."""
+        n, dims = points.shape
+        packed = np.zeros(((n + _BLOCK - 1) // _BLOCK, dims, _BLOCK), dtype=np.float32)
+        spread = 0.0
         for i in range(n):
-            value = 0
-            for axis in range(dims):
-                cell = int((work[i, axis] - low[axis]) * scale[axis])
-                for bit in range(10):
-                    value |= ((cell >> bit) & 1) << (bit * dims + axis)
-            code[i] = value
-        ranked = np.arange(n)
-        spare = np.empty(n, dtype=np.int64)
-        for shift in (0, 15):  # stable counting sort on 15 bits at a time
-            counts = np.zeros(32769, dtype=np.int64)
-            for i in range(n):
-                counts[((code[ranked[i]] >> shift) & 32767) + 1] += 1
-            for b in range(32768):
-                counts[b + 1] += counts[b]
-            for i in range(n):
-                key = (code[ranked[i]] >> shift) & 32767
-                spare[counts[key]] = ranked[i]
-                counts[key] += 1
-            ranked, spare = spare, ranked
-        return ranked
+            norm = 0.0
+            for k in range(dims):
+                gap = points[i, k] - center[k]
+                packed[i // _BLOCK, k, i % _BLOCK] = gap
+                norm += gap * gap
+            spread = max(spread, norm)
+        return packed, np.sqrt(spread)
 
-    return order
+    @njit(cache=True, fastmath=False)
+    def maxmin_stream_single(points, packed, center, first, n_landmarks, box, slack, spread):
+        """Euclidean streaming: a float32 pass screens, exact float64 distances decide.
 
+        A point is skipped only when its float32 distance, less a bound on everything
+        float32 can have got wrong, still exceeds its current distance. The bound: each
+        coordinate of x - c and y - c is rounded once to float32 (relative 2^-24, so at
+        most 2^-24 (|x - c| + |y - c|) <= 2^-23 * spread in the norm), and the float32
+        norm of the rounded difference carries a relative error below (dims + 4) 2^-24
+        (the standard bound for a sum of dims squares and a square root, N. J. Higham,
+        "Accuracy and Stability of Numerical Algorithms", 2nd ed., SIAM 2002, sec. 3.1);
+        both are doubled for margin.
+        """
+        n, dims = points.shape
+        unit = 2.0**-24
+        relative = 2.0 * (dims + 4) * unit
+        absolute = 4.0 * unit * spread + 1e-300
+        to_mark = np.empty(n)
+        owner = np.zeros(n, dtype=np.int32)
+        radius = np.full(n_landmarks, -1.0)
+        far = np.full(n_landmarks, -1, dtype=np.int64)
+        half = np.empty(n_landmarks)
+        marks = np.empty((n_landmarks, dims))
+        chosen = np.empty(n_landmarks, dtype=np.int64)
+        target = np.empty(dims, dtype=np.float32)
+        square = np.empty(_BLOCK, dtype=np.float32)
+        chosen[0], marks[0] = first, points[first]
+        for i in range(n):
+            to_mark[i] = dist(points, i, marks, 0, _EUCLIDEAN, 2.0, box)
+            if to_mark[i] > radius[0]:
+                radius[0], far[0] = to_mark[i], i
+        count = 1
+        while count < n_landmarks:
+            best, pick = farthest_position(radius, far, count)
+            if best <= 0.0:
+                break
+            new = count
+            chosen[new], marks[new] = pick, points[pick]
+            half_distances(marks, radius, far, half, count, new, _EUCLIDEAN, 2.0, box, slack)
+            for k in range(dims):
+                target[k] = points[pick, k] - center[k]
+            for block in range(packed.shape[0]):
+                for b in range(_BLOCK):
+                    square[b] = 0.0
+                for k in range(dims):
+                    value = target[k]
+                    for b in range(_BLOCK):
+                        gap = packed[block, k, b] - value
+                        square[b] += gap * gap
+                for b in range(min(_BLOCK, n - block * _BLOCK)):
+                    i = block * _BLOCK + b
+                    j = owner[i]
+                    if half[j] < 0.0:
+                        continue
+                    if to_mark[i] > half[j]:
+                        rough = np.float64(np.sqrt(square[b]))
+                        if rough - relative * rough - absolute < to_mark[i] * slack:
+                            d = dist(points, i, marks, new, _EUCLIDEAN, 2.0, box)
+                            if d < to_mark[i]:
+                                to_mark[i], owner[i] = d, new
+                                if d > radius[new]:
+                                    radius[new], far[new] = d, i
+                                continue
+                    if to_mark[i] > radius[j]:
+                        radius[j], far[j] = to_mark[i], i
+            count += 1
+        return chosen[:count], owner, to_mark
 
-def _morton_order(work: NDArray[np.float64]) -> NDArray[np.intp]:
-    """Order of the points along a Z-order curve of their first three coordinates (memory locality)."""
-    dims = min(3, work.shape[1])
-    low = work[:, :dims].min(axis=0)
-    span = work[:, :dims].max(axis=0) - low
-    scale = np.where(span > 0, 1023.0 / np.where(span > 0, span, 1.0), 0.0)
-    return _curve_kernel()(work, low, scale, dims)
+    return maxmin_tree, unshuffle, maxmin_stream, pack_single, maxmin_stream_single
 
 
 def compiled_maxmin(cloud: Cloud, n_landmarks: int, rows: NDArray[np.intp], first: int):
@@ -254,26 +436,43 @@ def compiled_maxmin(cloud: Cloud, n_landmarks: int, rows: NDArray[np.intp], firs
 
     Returns (landmarks, owner, distance): the chosen cloud indices (fewer when the candidates
     run out of distinct points), and for each row the position of its nearest landmark and the
-    working-space distance to it. The points are first laid out along a Z-order curve so that
-    each cell's members sit close in memory; ties still go to the lowest cloud index.
+    working-space distance to it. Ties go to the lowest position among ``rows``, as in the
+    plain loop.
     """
     kernel = _kernel()
     if kernel is None or cloud.distance_matrix is not None:
         return None
-    mode, p, box = distance_mode(cloud)
     rows = np.asarray(rows, dtype=np.int64)
     candidates = rows if np.isin(first, rows) else np.concatenate((rows, [first]))
+    first_pos = int(np.flatnonzero(candidates == first)[0])
     work = _geometry.working_points(cloud)
     whole = candidates.size == work.shape[0] and np.array_equal(candidates, np.arange(work.shape[0]))
-    order = _morton_order(work if whole else work[candidates])
-    keys = candidates[order]
-    first_pos = int(np.flatnonzero(keys == first)[0])
-    laid_out = work[keys]  # the one copy of the coordinates, in curve order
-    # Lists win while the cell test prunes (few coordinates); streaming wins beyond (measured crossover).
-    routine = kernel[0] if work.shape[1] <= STREAM_ABOVE_DIMS else kernel[1]
-    chosen, owner, distance = routine(laid_out, keys, first_pos, int(n_landmarks), mode, p, box, _SLACK)
-    del laid_out
-    back = np.empty_like(order)
-    back[order] = np.arange(order.size)
-    keep = back[: rows.size]  # the rows come first among the candidates
-    return keys[chosen], owner[keep], distance[keep]
+    if work.shape[1] <= STREAM_ABOVE_DIMS:  # the cell test prunes most points: runs (measured crossover)
+        chosen, owner, distance = _by_boxes(kernel, cloud, work.copy() if whole else work[candidates],
+                                           first_pos, n_landmarks)
+    else:
+        chosen, owner, distance = _by_stream(kernel, cloud, work if whole else work[candidates],
+                                             first_pos, n_landmarks)
+    return candidates[chosen], owner[: rows.size], distance[: rows.size]
+
+
+def _by_boxes(kernel, cloud, points, first_pos, n_landmarks):
+    mode, p, box = distance_mode(cloud)
+    rank = np.arange(points.shape[0], dtype=np.int32 if points.shape[0] < 2**31 else np.int64)
+    chosen, owner, to_mark = kernel[0](points, rank, first_pos, int(n_landmarks), _LEAF_SIZE, _GROUP, mode, p, box,
+                                       _SLACK)
+    del points  # the reordered copy goes before the outputs are allocated
+    owner, distance = kernel[1](owner, to_mark, rank)
+    return chosen, owner, distance
+
+
+def _by_stream(kernel, cloud, points, first_pos, n_landmarks):
+    mode, p, box = distance_mode(cloud)
+    if mode == _EUCLIDEAN:
+        center = 0.5 * (points.min(axis=0) + points.max(axis=0))
+        if np.max(points.max(axis=0) - points.min(axis=0)) <= _FLOAT32_SPREAD_LIMIT:
+            packed, spread = kernel[3](points, center)
+            chosen, owner, distance = kernel[4](points, packed, center, first_pos, int(n_landmarks), box, _SLACK,
+                                                spread)
+            return chosen, owner.astype(np.intp), distance
+    return kernel[2](points, first_pos, int(n_landmarks), mode, p, box, _SLACK)

@@ -195,7 +195,7 @@ def _maxmin(cloud, n_landmarks, rows, start, generator):
         raise InvalidParameterError(
             f"The 'n_landmarks' parameter of {_FN} must be at most the number of distinct points among "
             f"the candidates, {len(chosen)}. Got {n_landmarks} instead.", parameter="n_landmarks")
-    cover = None if compiled is None else (compiled[1].astype(np.intp), compiled[2])
+    cover = None if compiled is None else (compiled[1].astype(np.intp, copy=False), compiled[2])
     return np.asarray(chosen, dtype=np.intp), cover
 
 
