@@ -346,89 +346,44 @@ def _kernel():
 
     @njit(cache=True)
     def pack_single(points, center):
-        """``points - center`` in float32, in blocks of _BLOCK points (shape (blocks, dims, _BLOCK)),
-        and the largest float64 norm of ``points - center``."""
+        """``points - center`` in float32, the float64 squared norms of those float32 rows, and
+        the largest norm of either form."""
         n, dims = points.shape
-        packed = np.zeros(((n + _BLOCK - 1) // _BLOCK, dims, _BLOCK), dtype=np.float32)
+        packed = np.empty((n, dims), dtype=np.float32)
+        norms = np.empty(n)
         spread = 0.0
         for i in range(n):
-            norm = 0.0
+            exact, rounded = 0.0, 0.0
             for k in range(dims):
                 gap = points[i, k] - center[k]
-                packed[i // _BLOCK, k, i % _BLOCK] = gap
-                norm += gap * gap
-            spread = max(spread, norm)
-        return packed, np.sqrt(spread)
+                packed[i, k] = gap
+                exact += gap * gap
+                single = np.float64(packed[i, k])
+                rounded += single * single
+            norms[i] = rounded
+            spread = max(spread, exact, rounded)
+        return packed, norms, np.sqrt(spread)
 
     @njit(cache=True, fastmath=False)
-    def maxmin_stream_single(points, packed, center, first, n_landmarks, box, slack, spread):
-        """Euclidean streaming: a float32 pass screens, exact float64 distances decide.
+    def screen_pass(points, products, slack_sq, norms, limit, marks, new, to_mark, owner, absolute, slack, scratch):
+        """Exact distances for the points the float32 screen cannot rule out.
 
-        A point is skipped only when its float32 distance, less a bound on everything
-        float32 can have got wrong, still exceeds its current distance. The bound: each
-        coordinate of x - c and y - c is rounded once to float32 (relative 2^-24, so at
-        most 2^-24 (|x - c| + |y - c|) <= 2^-23 * spread in the norm), and the float32
-        norm of the rounded difference carries a relative error below (dims + 4) 2^-24
-        (the standard bound for a sum of dims squares and a square root, N. J. Higham,
-        "Accuracy and Stability of Numerical Algorithms", 2nd ed., SIAM 2002, sec. 3.1);
-        both are doubled for margin.
+        ``slack_sq[i]`` is |x~|^2 - (d(x) slack + A)^2, so a point is ruled out when
+        ``slack_sq[i] - 2 <x~, y~> >= limit`` (see ``_stream_euclidean``). A branch-free
+        pass lists the others first.
         """
-        n, dims = points.shape
-        unit = 2.0**-24
-        relative = 2.0 * (dims + 4) * unit
-        absolute = 4.0 * unit * spread + 1e-300
-        to_mark = np.empty(n)
-        owner = np.zeros(n, dtype=np.int32)
-        radius = np.full(n_landmarks, -1.0)
-        far = np.full(n_landmarks, -1, dtype=np.int64)
-        half = np.empty(n_landmarks)
-        marks = np.empty((n_landmarks, dims))
-        chosen = np.empty(n_landmarks, dtype=np.int64)
-        target = np.empty(dims, dtype=np.float32)
-        square = np.empty(_BLOCK, dtype=np.float32)
-        chosen[0], marks[0] = first, points[first]
-        for i in range(n):
-            to_mark[i] = dist(points, i, marks, 0, _EUCLIDEAN, 2.0, box)
-            if to_mark[i] > radius[0]:
-                radius[0], far[0] = to_mark[i], i
-        count = 1
-        while count < n_landmarks:
-            best, pick = farthest_position(radius, far, count)
-            if best <= 0.0:
-                break
-            new = count
-            chosen[new], marks[new] = pick, points[pick]
-            half_distances(marks, radius, far, half, count, new, _EUCLIDEAN, 2.0, box, slack)
-            for k in range(dims):
-                target[k] = points[pick, k] - center[k]
-            for block in range(packed.shape[0]):
-                for b in range(_BLOCK):
-                    square[b] = 0.0
-                for k in range(dims):
-                    value = target[k]
-                    for b in range(_BLOCK):
-                        gap = packed[block, k, b] - value
-                        square[b] += gap * gap
-                for b in range(min(_BLOCK, n - block * _BLOCK)):
-                    i = block * _BLOCK + b
-                    j = owner[i]
-                    if half[j] < 0.0:
-                        continue
-                    if to_mark[i] > half[j]:
-                        rough = np.float64(np.sqrt(square[b]))
-                        if rough - relative * rough - absolute < to_mark[i] * slack:
-                            d = dist(points, i, marks, new, _EUCLIDEAN, 2.0, box)
-                            if d < to_mark[i]:
-                                to_mark[i], owner[i] = d, new
-                                if d > radius[new]:
-                                    radius[new], far[new] = d, i
-                                continue
-                    if to_mark[i] > radius[j]:
-                        radius[j], far[j] = to_mark[i], i
-            count += 1
-        return chosen[:count], owner, to_mark
+        listed = 0
+        for i in range(points.shape[0]):
+            scratch[listed] = i
+            listed += slack_sq[i] - 2.0 * products[i] < limit
+        for t in range(listed):
+            i = scratch[t]
+            d = dist(points, i, marks, new, _EUCLIDEAN, 2.0, points[0])
+            if d < to_mark[i]:
+                to_mark[i], owner[i] = d, new
+                slack_sq[i] = norms[i] - (d * slack + absolute) ** 2
 
-    return maxmin_tree, unshuffle, maxmin_stream, pack_single, maxmin_stream_single
+    return maxmin_tree, unshuffle, maxmin_stream, pack_single, screen_pass
 
 
 def compiled_maxmin(cloud: Cloud, n_landmarks: int, rows: NDArray[np.intp], first: int):
@@ -468,11 +423,46 @@ def _by_boxes(kernel, cloud, points, first_pos, n_landmarks):
 
 def _by_stream(kernel, cloud, points, first_pos, n_landmarks):
     mode, p, box = distance_mode(cloud)
-    if mode == _EUCLIDEAN:
-        center = 0.5 * (points.min(axis=0) + points.max(axis=0))
-        if np.max(points.max(axis=0) - points.min(axis=0)) <= _FLOAT32_SPREAD_LIMIT:
-            packed, spread = kernel[3](points, center)
-            chosen, owner, distance = kernel[4](points, packed, center, first_pos, int(n_landmarks), box, _SLACK,
-                                                spread)
-            return chosen, owner.astype(np.intp), distance
+    if mode == _EUCLIDEAN and np.max(np.ptp(points, axis=0)) <= _FLOAT32_SPREAD_LIMIT:
+        return _stream_euclidean(kernel, points, first_pos, n_landmarks)
     return kernel[2](points, first_pos, int(n_landmarks), mode, p, box, _SLACK)
+
+
+def _stream_euclidean(kernel, points, first_pos, n_landmarks):
+    """Maxmin with a float32 screen: one float32 matrix-vector product per landmark.
+
+    With x~, y~ the float32 roundings of x - c and y - c and s = |x~|^2 - 2 <x~, y~> + |y~|^2,
+    the float32 product errs by at most (dims + 1) 2^-24 |x~| |y~| in any summation order
+    (N. J. Higham, "Accuracy and Stability of Numerical Algorithms", 2nd ed., SIAM 2002,
+    sec. 3.1), so |x~ - y~|^2 >= s - E with E = 2 (dims + 1) 2^-24 R^2, R the largest norm;
+    and each rounding moves a point by at most 2^-24 R, so |x - y| >= sqrt(s - E) - A with
+    A = 2^-23 R. Both are doubled for margin. Only points with sqrt(s - E) - A below their
+    current distance get the exact float64 distance, so the choices are those of the
+    float64 loop; the last landmark's distances are all exact.
+    """
+    dims = points.shape[1]
+    center = 0.5 * (points.min(axis=0) + points.max(axis=0))
+    packed, norms, spread = kernel[3](points, center)
+    unit = 2.0**-24
+    error_sq = 4.0 * (dims + 1) * unit * spread**2
+    absolute = 4.0 * unit * spread
+    n = points.shape[0]
+    to_mark = np.full(n, np.inf)
+    slack_sq = np.full(n, -np.inf)  # no distance yet: every point gets one from the first landmark
+    owner = np.zeros(n, dtype=np.int32)
+    products = np.empty(n, dtype=np.float32)
+    scratch = np.empty(n, dtype=np.int32 if n < 2**31 else np.int64)
+    marks = np.empty((n_landmarks, dims))
+    chosen, pick = [], first_pos
+    while len(chosen) < n_landmarks:
+        new = len(chosen)
+        chosen.append(pick)
+        marks[new] = points[pick]
+        target = (points[pick] - center).astype(np.float32)
+        np.dot(packed, target, out=products)
+        limit = error_sq - float(np.dot(target.astype(np.float64), target.astype(np.float64)))
+        kernel[4](points, products, slack_sq, norms, limit, marks, new, to_mark, owner, absolute, _SLACK, scratch)
+        pick = int(np.argmax(to_mark))  # the first of equal maxima: ties to the lowest position
+        if to_mark[pick] <= 0.0:
+            break
+    return np.asarray(chosen, dtype=np.int64), owner.astype(np.intp), to_mark
