@@ -386,8 +386,8 @@ def _kernel():
     return maxmin_tree, unshuffle, maxmin_stream, pack_single, screen_pass
 
 
-def compiled_maxmin(cloud: Cloud, n_landmarks: int, rows: NDArray[np.intp], first: int):
-    """Pruned maxmin among ``rows``; None when numba is unavailable (the caller then streams).
+def compiled_maxmin(cloud: Cloud, n_landmarks: int, rows: NDArray[np.intp] | None, first: int):
+    """Pruned maxmin among ``rows`` (every point when None); None when numba is unavailable.
 
     Returns (landmarks, owner, distance): the chosen cloud indices (fewer when the candidates
     run out of distinct points), and for each row the position of its nearest landmark and the
@@ -397,22 +397,26 @@ def compiled_maxmin(cloud: Cloud, n_landmarks: int, rows: NDArray[np.intp], firs
     kernel = _kernel()
     if kernel is None or cloud.distance_matrix is not None:
         return None
-    rows = np.asarray(rows, dtype=np.int64)
-    candidates = rows if np.isin(first, rows) else np.concatenate((rows, [first]))
-    first_pos = int(np.flatnonzero(candidates == first)[0])
     work = _geometry.working_points(cloud)
-    whole = candidates.size == work.shape[0] and np.array_equal(candidates, np.arange(work.shape[0]))
-    if work.shape[1] <= STREAM_ABOVE_DIMS:  # the cell test prunes most points: runs (measured crossover)
-        chosen, owner, distance = _by_boxes(kernel, cloud, work.copy() if whole else work[candidates],
-                                           first_pos, n_landmarks)
+    if rows is None:  # the whole cloud: no index arrays at all
+        candidates, count, first_pos = None, work.shape[0], int(first)
     else:
-        chosen, owner, distance = _by_stream(kernel, cloud, work if whole else work[candidates],
-                                             first_pos, n_landmarks)
-    return candidates[chosen], owner[: rows.size], distance[: rows.size]
+        rows = np.asarray(rows, dtype=np.int64)
+        candidates = rows if np.isin(first, rows) else np.concatenate((rows, [first]))
+        count, first_pos = rows.size, int(np.flatnonzero(candidates == first)[0])
+    # Boxes prune most points in few coordinates; in many, every point is streamed (measured crossover).
+    if work.shape[1] <= STREAM_ABOVE_DIMS:
+        chosen, owner, distance = _by_boxes(kernel, cloud, work, candidates, first_pos, n_landmarks)
+    else:
+        points = work if candidates is None else work[candidates]
+        chosen, owner, distance = _by_stream(kernel, cloud, points, first_pos, n_landmarks)
+    landmarks = chosen if candidates is None else candidates[chosen]
+    return landmarks, owner[:count], distance[:count]
 
 
-def _by_boxes(kernel, cloud, points, first_pos, n_landmarks):
+def _by_boxes(kernel, cloud, work, candidates, first_pos, n_landmarks):
     mode, p, box = distance_mode(cloud)
+    points = work.copy() if candidates is None else work[candidates]  # private: the boxes reorder it
     rank = np.arange(points.shape[0], dtype=np.int32 if points.shape[0] < 2**31 else np.int64)
     chosen, owner, to_mark = kernel[0](points, rank, first_pos, int(n_landmarks), _LEAF_SIZE, _GROUP, mode, p, box,
                                        _SLACK)

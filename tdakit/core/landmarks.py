@@ -135,7 +135,7 @@ def select_landmarks(
     if density_neighbors is None:
         density_neighbors = min(15, cloud.n_points - 1)
     if method == "maxmin":
-        indices, cover = _maxmin(cloud, n_landmarks, np.arange(cloud.n_points), start, generator)
+        indices, cover = _maxmin(cloud, n_landmarks, None, start, generator)
         if cover is not None:  # the compiled kernel already knows every point's nearest landmark
             return _wrap(indices, cover[0], _geometry.to_metric(cloud, cover[1]), method, params)
     elif method == "random":
@@ -182,13 +182,18 @@ def _check_distinct(cloud: Cloud, n_landmarks: int) -> None:
 
 
 def _maxmin(cloud, n_landmarks, rows, start, generator):
-    """Sequential farthest-point selection among ``rows``.
+    """Sequential farthest-point selection among ``rows`` (every point when None).
 
     Returns the cloud indices, and (nearest, working distance) for every row when the compiled
     kernel ran (None otherwise).
     """
-    first = int(rows[generator.integers(rows.size)]) if start is None else start
+    first = start
+    if start is None:
+        pick = int(generator.integers(cloud.n_points if rows is None else rows.size))
+        first = pick if rows is None else int(rows[pick])
     compiled = compiled_maxmin(cloud, n_landmarks, rows, first)
+    if compiled is None and rows is None:
+        rows = np.arange(cloud.n_points)
     # Without numba, or for a given matrix (which need not obey the triangle inequality): stream.
     chosen = reference_maxmin(cloud, n_landmarks, rows, first) if compiled is None else compiled[0].tolist()
     if len(chosen) < n_landmarks:
