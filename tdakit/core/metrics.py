@@ -126,17 +126,27 @@ class Metric:
         return cdist(a, b, "minkowski", p=self.p)
 
     def working_to_point(self, a: NDArray[np.float64], x: NDArray[np.float64]) -> NDArray[np.float64]:
-        """Working-space distances from every row of ``a`` to the single point ``x``."""
-        diff = np.abs(a - x)
-        if self.name == "periodic":
-            diff = np.minimum(diff, np.asarray(self.box) - diff)
+        """Working-space distances from every row of ``a`` to the single point ``x``.
+
+        Terms are added in coordinate order, so every value is bit-identical to the compiled
+        landmark kernels' (exact ties then break the same way everywhere).
+        """
+        if np.isinf(self.p) and self.name != "periodic":
+            return np.abs(a - x).max(axis=1)
+        total = np.zeros(a.shape[0])
+        for axis in range(a.shape[1]):
+            gap = np.abs(a[:, axis] - x[axis])
+            if self.name == "periodic":
+                gap = np.minimum(gap, self.box[axis] - gap)
+            if self.p == 2.0:
+                total += gap * gap
+            elif self.p == 1.0:
+                total += gap
+            else:
+                total += gap**self.p
         if self.p == 2.0:
-            return np.sqrt(np.einsum("ij,ij->i", diff, diff))
-        if np.isinf(self.p):
-            return diff.max(axis=1)
-        if self.p == 1.0:
-            return diff.sum(axis=1)
-        return (diff**self.p).sum(axis=1) ** (1.0 / self.p)
+            return np.sqrt(total)
+        return total if self.p == 1.0 else total ** (1.0 / self.p)
 
 
 def make_metric(name: str = "euclidean", *, p: float | None = None, box=None, function: str = "load_cloud") -> Metric:

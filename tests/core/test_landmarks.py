@@ -2,6 +2,8 @@ import warnings
 
 import numpy as np
 import pytest
+from hypothesis import given
+from hypothesis import strategies as st
 from scipy.spatial.distance import cdist
 
 import tdakit
@@ -172,7 +174,7 @@ def test_core_maxmin_may_start_outside_the_core():
 @pytest.mark.filterwarnings("ignore::tdakit.errors.DuplicatePointsWarning")
 @pytest.mark.parametrize("metric", ["euclidean", "manhattan", "chebyshev", "periodic"])
 @pytest.mark.parametrize("dims", [2, 6])
-def test_list_and_streaming_kernels_agree_with_the_plain_loop(metric, dims, monkeypatch, global_seed):
+def test_box_and_streaming_kernels_agree_with_the_plain_loop(metric, dims, monkeypatch, global_seed):
     # Integer coordinates make many exact ties; the plain loop (de Silva & Carlsson 2004, ties to the lowest
     # index) is the reference for both compiled routines.
     from tdakit.core import _maxmin
@@ -182,7 +184,7 @@ def test_list_and_streaming_kernels_agree_with_the_plain_loop(metric, dims, monk
     cloud = tdakit.load_cloud(points, metric=metric, **kwargs)
     count = min(25, cloud.n_distinct)
     results = []
-    for threshold in (99, 0):  # 99: always lists; 0: always streaming
+    for threshold in (99, 0):  # 99: always boxes; 0: always streaming
         monkeypatch.setattr(_maxmin, "STREAM_ABOVE_DIMS", threshold)
         results.append(tdakit.select_landmarks(cloud, count, start=3))
     monkeypatch.setattr(_maxmin, "_kernel", lambda: None)
@@ -192,3 +194,98 @@ def test_list_and_streaming_kernels_agree_with_the_plain_loop(metric, dims, monk
         # Nearest landmarks may differ on exact ties between two landmarks; the distances may not.
         np.testing.assert_allclose(marks.distance_to_nearest, plain.distance_to_nearest, rtol=1e-12, atol=1e-12)
         assert marks.coverage_radius == pytest.approx(plain.coverage_radius, rel=1e-12)
+
+
+def _plain_maxmin(cloud, count, start, monkeypatch):
+    """The numpy loop of de Silva & Carlsson (2004): every candidate streamed once per landmark."""
+    from tdakit.core import _maxmin
+
+    with monkeypatch.context() as patch:
+        patch.setattr(_maxmin, "_kernel", lambda: None)
+        return tdakit.select_landmarks(cloud, count, start=start)
+
+
+def _assert_same_selection(fast, plain):
+    np.testing.assert_array_equal(fast.indices, plain.indices)
+    np.testing.assert_allclose(fast.distance_to_nearest, plain.distance_to_nearest, rtol=1e-12, atol=0)
+    assert fast.coverage_radius == pytest.approx(plain.coverage_radius, rel=1e-12)
+
+
+def _awkward_cloud(kind, rng):
+    if kind == "orders_of_magnitude":  # boxes over 18 orders of magnitude, and far outliers
+        points = rng.normal(size=(150, 3)) * 10.0 ** rng.integers(-6, 7, (150, 1))
+        return np.vstack((points, [[1e9, 0.0, 0.0], [-1e9, 1e-9, 0.0]]))
+    if kind == "repeats":  # many exact copies and exact ties
+        return rng.integers(0, 3, (200, 3)).astype(float)
+    if kind == "line":
+        return rng.normal(size=(200, 1))
+    if kind == "four_coordinates":
+        return rng.standard_t(2, size=(200, 4))
+    raise ValueError(kind)
+
+
+@pytest.mark.filterwarnings("ignore::tdakit.errors.DuplicatePointsWarning")
+@pytest.mark.parametrize("metric", [("euclidean", {}), ("manhattan", {}), ("chebyshev", {}),
+                                    ("minkowski", {"p": 3.0})], ids=lambda m: m[0])
+@pytest.mark.parametrize("kind", ["orders_of_magnitude", "repeats", "line", "four_coordinates"])
+def test_box_route_matches_the_plain_loop_on_awkward_clouds(kind, metric, monkeypatch, global_seed):
+    # Two points per box and two boxes per group: every pruning test fires many times.
+    from tdakit.core import _maxmin
+
+    monkeypatch.setattr(_maxmin, "_LEAF_SIZE", 2)
+    monkeypatch.setattr(_maxmin, "_GROUP", 2)
+    cloud = tdakit.load_cloud(_awkward_cloud(kind, np.random.default_rng(global_seed)), metric=metric[0],
+                              **metric[1])
+    count = min(40, cloud.n_distinct)
+    _assert_same_selection(tdakit.select_landmarks(cloud, count, start=1),
+                           _plain_maxmin(cloud, count, 1, monkeypatch))
+
+
+def test_box_route_sees_across_the_periodic_boundary(monkeypatch, global_seed):
+    # Points hugging both faces of the box are neighbours through the boundary (minimum image).
+    from tdakit.core import _maxmin
+
+    monkeypatch.setattr(_maxmin, "_LEAF_SIZE", 3)
+    rng = np.random.default_rng(global_seed)
+    points = rng.uniform(0, 1, (240, 3))
+    points[:40, 0] = rng.choice([1e-9, 1 - 1e-9], 40)
+    cloud = tdakit.load_cloud(points, metric="periodic", box=1.0)
+    _assert_same_selection(tdakit.select_landmarks(cloud, 50, start=0), _plain_maxmin(cloud, 50, 0, monkeypatch))
+
+
+@pytest.mark.parametrize("kind", ["far_from_origin", "tiny_beside_huge", "beyond_float32"])
+def test_float32_screen_keeps_the_float64_choices(kind, monkeypatch, global_seed):
+    # The screen may only pass points on to exact distances, never decide: near-equal distances that
+    # float32 cannot tell apart must still be ordered as float64 orders them.
+    from tdakit.core import _maxmin
+
+    rng = np.random.default_rng(global_seed)
+    points = rng.normal(size=(400, 8))
+    if kind == "far_from_origin":
+        points = 1e7 + points * 1e-3
+    elif kind == "tiny_beside_huge":
+        points = np.vstack((points * 1e-7, [[1e3] * 8, [-1e3] * 8]))
+    else:
+        points = points * 1e30
+    used = []
+    real = _maxmin._stream_euclidean
+    monkeypatch.setattr(_maxmin, "_stream_euclidean", lambda *a: used.append(1) or real(*a))
+    cloud = tdakit.load_cloud(points)
+    fast = tdakit.select_landmarks(cloud, 60, start=2)
+    assert bool(used) == (kind != "beyond_float32")  # squares of 1e30 would overflow float32
+    _assert_same_selection(fast, _plain_maxmin(cloud, 60, 2, monkeypatch))
+
+
+@given(st.integers(1, 6), st.integers(2, 60), st.integers(0, 2**32 - 1), st.sampled_from([-8, 0, 8]))
+def test_every_route_matches_the_plain_loop_on_random_clouds(dims, n, seed, exponent):
+    rng = np.random.default_rng(seed)
+    points = np.round(rng.normal(size=(n, dims)), int(rng.integers(0, 3))) * 10.0**exponent  # rounding: ties
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        cloud = tdakit.load_cloud(points)
+    count = int(rng.integers(1, cloud.n_distinct + 1))
+    from tdakit.core import _maxmin
+
+    fast = tdakit.select_landmarks(cloud, count, start=0)
+    with pytest.MonkeyPatch.context() as patch:
+        _assert_same_selection(fast, _plain_maxmin(cloud, count, 0, patch))
