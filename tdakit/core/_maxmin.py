@@ -120,7 +120,8 @@ def _kernel():
     @njit(cache=True)
     def split(points, rank, lo, hi, axis, cut):
         """Reorder the slots [lo, hi) so that coordinates below ``cut`` on ``axis`` come first
-        (two pointers, swapping only misplaced pairs). Returns the first slot of the upper side."""
+        (two pointers, swapping only misplaced pairs). Returns the first slot of the upper side.
+        """
         i, j = lo, hi - 1
         while True:
             while i <= j and points[i, axis] < cut:
@@ -347,7 +348,8 @@ def _kernel():
     @njit(cache=True)
     def pack_single(points, center):
         """``points - center`` in float32, the float64 squared norms of those float32 rows, and
-        the largest norm of either form."""
+        the largest norm of either form.
+        """
         n, dims = points.shape
         packed = np.empty((n, dims), dtype=np.float32)
         norms = np.empty(n)

@@ -284,7 +284,6 @@ def test_every_route_matches_the_plain_loop_on_random_clouds(dims, n, seed, expo
         warnings.simplefilter("ignore")
         cloud = tdakit.load_cloud(points)
     count = int(rng.integers(1, cloud.n_distinct + 1))
-    from tdakit.core import _maxmin
 
     fast = tdakit.select_landmarks(cloud, count, start=0)
     with pytest.MonkeyPatch.context() as patch:
