@@ -22,6 +22,8 @@ of the float64 loop.
 
 from __future__ import annotations
 
+import os
+from concurrent.futures import ThreadPoolExecutor
 from functools import lru_cache
 
 import numpy as np
@@ -33,7 +35,7 @@ from tdakit.core.cloud import Cloud
 _SLACK = 1.0 + 1e-12  # prune only with a margin over rounding
 STREAM_ABOVE_DIMS = 4
 _LEAF_SIZE, _GROUP = 64, 32  # points per box, boxes per group
-_BLOCK = 16  # points per float32 block: one vector register row per coordinate
+_CHUNK = 256  # points per float32 block: each coordinate's row of a block is one vector loop
 _FLOAT32_SPREAD_LIMIT = 1e15  # beyond this, float32 squares could overflow: stream in float64
 _EUCLIDEAN, _MANHATTAN, _CHEBYSHEV, _MINKOWSKI, _PERIODIC = range(5)
 
@@ -347,45 +349,66 @@ def _kernel():
 
     @njit(cache=True)
     def pack_single(points, center):
-        """``points - center`` in float32, the float64 squared norms of those float32 rows, and
-        the largest norm of either form.
-        """
+        """``points - center`` in float32, in blocks of _CHUNK points (shape (blocks, dims, _CHUNK),
+        padding at the centre), and the largest norm of ``points - center``."""
         n, dims = points.shape
-        packed = np.empty((n, dims), dtype=np.float32)
-        norms = np.empty(n)
+        packed = np.zeros(((n + _CHUNK - 1) // _CHUNK, dims, _CHUNK), dtype=np.float32)
         spread = 0.0
         for i in range(n):
-            exact, rounded = 0.0, 0.0
+            norm = 0.0
             for k in range(dims):
                 gap = points[i, k] - center[k]
-                packed[i, k] = gap
-                exact += gap * gap
-                single = np.float64(packed[i, k])
-                rounded += single * single
-            norms[i] = rounded
-            spread = max(spread, exact, rounded)
-        return packed, norms, np.sqrt(spread)
+                packed[i // _CHUNK, k, i % _CHUNK] = gap
+                norm += gap * gap
+            spread = max(spread, norm)
+        return packed, np.sqrt(spread)
 
-    @njit(cache=True, fastmath=False)
-    def screen_pass(points, products, slack_sq, norms, limit, marks, new, to_mark, owner, absolute, slack, scratch):
-        """Exact distances for the points the float32 screen cannot rule out.
+    @njit(cache=True, inline="always")
+    def screen_bound(d, slack, absolute, relative):
+        """The float32 squared distance at or above which a point at distance ``d`` cannot move."""
+        reach = (d * slack + absolute) / (1.0 - relative)
+        return np.float32(reach * reach * (1.0 + 2.0**-20))  # rounded up past float32's rounding
 
-        ``slack_sq[i]`` is |x~|^2 - (d(x) slack + A)^2, so a point is ruled out when
-        ``slack_sq[i] - 2 <x~, y~> >= limit`` (see ``_stream_euclidean``). A branch-free
-        pass lists the others first.
+    @njit(cache=True, nogil=True, fastmath=False)
+    def stream_blocks(points, packed, target, first_block, last_block, to_mark, owner, bound, marks, new,
+                      slack, absolute, relative):
+        """One landmark's pass over blocks [first_block, last_block): the farthest point after it.
+
+        Float32 squared distances to the new landmark, vectorised over each block's points,
+        screen out every point whose float32 value reaches its ``bound``; the rest get the
+        exact float64 distance. Ties go to the lowest position. Releases the GIL, so blocks
+        can be split between threads.
         """
-        listed = 0
-        for i in range(points.shape[0]):
-            scratch[listed] = i
-            listed += slack_sq[i] - 2.0 * products[i] < limit
-        for t in range(listed):
-            i = scratch[t]
-            d = dist(points, i, marks, new, _EUCLIDEAN, 2.0, points[0])
-            if d < to_mark[i]:
-                to_mark[i], owner[i] = d, new
-                slack_sq[i] = norms[i] - (d * slack + absolute) ** 2
+        n, dims = points.shape
+        square = np.empty(_CHUNK, dtype=np.float32)
+        listed = np.empty(_CHUNK, dtype=np.int64)
+        best, pick = -1.0, -1
+        for block in range(first_block, last_block):
+            for i in range(_CHUNK):
+                square[i] = 0.0
+            for k in range(dims):
+                row = packed[block, k]
+                value = target[k]
+                for i in range(_CHUNK):
+                    gap = row[i] - value
+                    square[i] += gap * gap
+            base = block * _CHUNK
+            size, count = min(_CHUNK, n - base), 0
+            for i in range(size):
+                listed[count] = base + i
+                count += square[i] < bound[base + i]
+            for t in range(count):
+                i = listed[t]
+                d = dist(points, i, marks, new, _EUCLIDEAN, 2.0, target)
+                if d < to_mark[i]:
+                    to_mark[i], owner[i] = d, new
+                    bound[i] = screen_bound(d, slack, absolute, relative)
+            for i in range(base, base + size):
+                if to_mark[i] > best:
+                    best, pick = to_mark[i], i
+        return best, pick
 
-    return maxmin_tree, unshuffle, maxmin_stream, pack_single, screen_pass
+    return maxmin_tree, unshuffle, maxmin_stream, pack_single, stream_blocks
 
 
 def compiled_maxmin(cloud: Cloud, n_landmarks: int, rows: NDArray[np.intp] | None, first: int):
@@ -435,40 +458,46 @@ def _by_stream(kernel, cloud, points, first_pos, n_landmarks):
 
 
 def _stream_euclidean(kernel, points, first_pos, n_landmarks):
-    """Maxmin with a float32 screen: one float32 matrix-vector product per landmark.
+    """Maxmin with a float32 screen, split over threads: one pass over float32 blocks per landmark.
 
-    With x~, y~ the float32 roundings of x - c and y - c and s = |x~|^2 - 2 <x~, y~> + |y~|^2,
-    the float32 product errs by at most (dims + 1) 2^-24 |x~| |y~| in any summation order
+    With x~, y~ the float32 roundings of x - c and y - c, each rounding moves a point by at
+    most 2^-24 R (R the largest norm of x - c), so |x - y| >= |x~ - y~| - A with A = 2^-23 R;
+    the float32 sum of dims squared differences errs by at most (dims + 2) 2^-24 of itself
     (N. J. Higham, "Accuracy and Stability of Numerical Algorithms", 2nd ed., SIAM 2002,
-    sec. 3.1), so |x~ - y~|^2 >= s - E with E = 2 (dims + 1) 2^-24 R^2, R the largest norm;
-    and each rounding moves a point by at most 2^-24 R, so |x - y| >= sqrt(s - E) - A with
-    A = 2^-23 R. Both are doubled for margin. Only points with sqrt(s - E) - A below their
-    current distance get the exact float64 distance, so the choices are those of the
-    float64 loop; the last landmark's distances are all exact.
+    sec. 3.1). A is doubled and the relative bound taken as 2 (dims + 4) 2^-24 for margin.
+    A point whose float32 value reaches ((d slack + A) / (1 - relative))^2 cannot be nearer
+    to the new landmark than its distance d; every other point gets the exact float64
+    distance, so the choices are those of the float64 loop whatever the thread count.
     """
-    dims = points.shape[1]
+    n, dims = points.shape
     center = 0.5 * (points.min(axis=0) + points.max(axis=0))
-    packed, norms, spread = kernel[3](points, center)
+    packed, spread = kernel[3](points, center)
     unit = 2.0**-24
-    error_sq = 4.0 * (dims + 1) * unit * spread**2
-    absolute = 4.0 * unit * spread
-    n = points.shape[0]
+    slack, absolute, relative = _SLACK, 4.0 * unit * spread, 2.0 * (dims + 4) * unit
     to_mark = np.full(n, np.inf)
-    slack_sq = np.full(n, -np.inf)  # no distance yet: every point gets one from the first landmark
+    bound = np.full(n, np.inf, dtype=np.float32)  # no distance yet: every point gets one from the first landmark
     owner = np.zeros(n, dtype=np.int32)
-    products = np.empty(n, dtype=np.float32)
-    scratch = np.empty(n, dtype=np.int32 if n < 2**31 else np.int64)
     marks = np.empty((n_landmarks, dims))
+    edges = np.linspace(0, packed.shape[0], _stream_threads(n * dims) + 1).astype(np.int64)
     chosen, pick = [], first_pos
-    while len(chosen) < n_landmarks:
-        new = len(chosen)
-        chosen.append(pick)
-        marks[new] = points[pick]
-        target = (points[pick] - center).astype(np.float32)
-        np.dot(packed, target, out=products)
-        limit = error_sq - float(np.dot(target.astype(np.float64), target.astype(np.float64)))
-        kernel[4](points, products, slack_sq, norms, limit, marks, new, to_mark, owner, absolute, _SLACK, scratch)
-        pick = int(np.argmax(to_mark))  # the first of equal maxima: ties to the lowest position
-        if to_mark[pick] <= 0.0:
-            break
+    with ThreadPoolExecutor(max_workers=edges.size - 1) as pool:
+        while len(chosen) < n_landmarks:
+            new = len(chosen)
+            chosen.append(pick)
+            marks[new] = points[pick]
+            target = (points[pick] - center).astype(np.float32)
+            parts = [(edges[t], edges[t + 1]) for t in range(edges.size - 1)]
+            results = list(pool.map(lambda part: kernel[4](points, packed, target, part[0], part[1], to_mark, owner,
+                                                           bound, marks, new, slack, absolute, relative), parts))
+            best, pick = max(results, key=lambda r: (r[0], -r[1]))  # the farthest; ties to the lowest position
+            if best <= 0.0:
+                break
     return np.asarray(chosen, dtype=np.int64), owner.astype(np.intp), to_mark
+
+
+def _stream_threads(size: int) -> int:
+    """Threads for a float32 pass over ``size`` numbers: one below a million, else up to four cores."""
+    if size < 2**20:
+        return 1
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    return max(1, min(4, cores))
