@@ -11,7 +11,10 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+import queue
 import tempfile
+import threading
+from collections import deque
 from collections.abc import Callable, Sequence
 from pathlib import Path
 
@@ -63,7 +66,8 @@ def run_replicates(
     payload : object
         Passed to every call (the cloud and the options); shipped once per chunk.
     n_jobs : int, default=1
-        Local worker processes (joblib) when no ``executor`` is given; -1 for all cores.
+        Processes working when no ``executor`` is given, this one included (it takes chunks
+        while the others start); -1 for all cores.
     executor : object with ``submit(fn, *args)``, optional
         A ``concurrent.futures`` executor or a ``dask.distributed.Client``.
     progress : callable, optional
@@ -112,11 +116,50 @@ def _execute(task, payload, chunks, workers, executor, indexed):
         for chunk in chunks:
             yield dict(_chunk(task, payload, chunk, indexed))
     else:
-        from joblib import Parallel, delayed
+        from joblib.externals.loky import get_reusable_executor
 
-        parallel = Parallel(n_jobs=workers, return_as="generator_unordered")
-        for result in parallel(delayed(_chunk)(task, payload, chunk, indexed) for chunk in chunks):
-            yield dict(result)
+        helpers = workers - 1
+        yield from _share_with_pool(get_reusable_executor(max_workers=helpers), helpers, task, payload, chunks, indexed)
+
+
+def _share_with_pool(pool, helpers, task, payload, chunks, indexed):
+    """Run the chunks on the pool's workers and in this process at the same time.
+
+    This process starts at once, so the workers' start-up (a fresh interpreter and its
+    imports, the first time) costs only their own share; each worker takes the next chunk
+    the moment it finishes one. Results come back in completion order.
+    """
+    todo, lock, finished = deque(chunks), threading.Lock(), queue.SimpleQueue()
+
+    def next_chunk():
+        with lock:
+            return todo.popleft() if todo else None
+
+    def feed(future=None):
+        if future is not None:
+            finished.put(future)
+        chunk = next_chunk()
+        if chunk is not None:
+            pool.submit(_chunk, task, payload, chunk, indexed).add_done_callback(feed)
+
+    expected = len(chunks)
+    for _ in range(helpers):
+        feed()
+    try:
+        while expected:
+            while not finished.empty():
+                expected -= 1
+                yield dict(finished.get().result())
+            chunk = next_chunk()
+            if chunk is not None:
+                expected -= 1
+                yield dict(_chunk(task, payload, chunk, indexed))
+            elif expected:
+                expected -= 1
+                yield dict(finished.get().result())
+    finally:  # stopped early (an error, or the caller gave up): hand out no more chunks
+        with lock:
+            todo.clear()
 
 
 # -- checkpoints ------------------------------------------------------------------------------
