@@ -132,7 +132,7 @@ def _stream_euclidean(kernel, points, first_pos, n_landmarks):
     bound = np.full(n, np.inf, dtype=np.float32)  # no distance yet: every point gets one from the first landmark
     owner = np.zeros(n, dtype=np.int32)
     marks = np.empty((n_landmarks, dims))
-    edges = np.linspace(0, packed.shape[0], _stream_threads(n * dims) + 1).astype(np.int64)
+    edges = np.linspace(0, packed.shape[0], worker_threads(n * dims) + 1).astype(np.int64)
     chosen, pick = [], first_pos
     with ThreadPoolExecutor(max_workers=edges.size - 1) as pool:
         while len(chosen) < n_landmarks:
@@ -149,8 +149,8 @@ def _stream_euclidean(kernel, points, first_pos, n_landmarks):
     return np.asarray(chosen, dtype=np.int64), owner.astype(np.intp), to_mark
 
 
-def _stream_threads(size: int) -> int:
-    """Threads for a float32 pass over ``size`` numbers: one below a million, else up to four cores."""
+def worker_threads(size: int) -> int:
+    """Threads for a compiled pass over ``size`` numbers: one below a million, else up to four cores."""
     if size < 2**20:
         return 1
     cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)

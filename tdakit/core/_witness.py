@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from concurrent.futures import ThreadPoolExecutor
+
 import numpy as np
 from numpy.typing import NDArray
 
@@ -35,14 +37,42 @@ def lazy_witness_edges(cloud: Cloud, landmarks: NDArray[np.intp], nu: int, cap: 
     point is a witness. Vertices enter at 0.
     """
     m = landmarks.size
-    edges = np.full((m, m), np.inf)
-    step = _geometry.block_rows(m, cloud.n_points)
-    for start in range(0, cloud.n_points, step):
-        rows = np.arange(start, min(start + step, cloud.n_points))
-        _scatter_block(edges, _relative_distances(cloud, rows, landmarks, nu), cap)
+    edges = _compiled_edges(cloud, landmarks, nu, cap)
+    if edges is None:  # without numba, or for a given matrix: blocks of witnesses in numpy
+        edges = np.full((m, m), np.inf)
+        step = _geometry.block_rows(m, cloud.n_points)
+        for start in range(0, cloud.n_points, step):
+            rows = np.arange(start, min(start + step, cloud.n_points))
+            _scatter_block(edges, _relative_distances(cloud, rows, landmarks, nu), cap)
     edges = np.maximum(np.minimum(edges, edges.T), 0.0)
     np.fill_diagonal(edges, 0.0)
     return edges
+
+
+def _compiled_edges(cloud, landmarks, nu, cap):
+    """The upper triangle of the edge values from the compiled kernel, witnesses split over threads; None
+    without numba or for a given distance matrix. The minimum over threads is exact, so the values do not
+    depend on the thread count.
+    """
+    if cloud.distance_matrix is not None:
+        return None
+    try:
+        from tdakit.core._witness_kernels import lazy_edges
+    except ImportError:
+        return None
+    from tdakit.core._maxmin import distance_mode, worker_threads
+
+    mode, p, box = distance_mode(cloud)
+    work = _geometry.working_points(cloud)
+    marks = np.ascontiguousarray(work[landmarks])
+    # One m x m matrix per thread: threads only while those stay small.
+    threads = worker_threads(cloud.n_points * landmarks.size) if landmarks.size <= 2000 else 1
+    edges = np.full((threads, landmarks.size, landmarks.size), np.inf)
+    bounds = np.linspace(0, cloud.n_points, threads + 1).astype(np.int64)
+    with ThreadPoolExecutor(max_workers=threads) as pool:
+        list(pool.map(lambda t: lazy_edges(work, marks, bounds[t], bounds[t + 1], nu, float(cap), mode, p, box,
+                                           edges[t]), range(threads)))
+    return edges.min(axis=0)
 
 
 def _scatter_block(edges, relative, cap):
