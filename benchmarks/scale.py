@@ -2,23 +2,25 @@
 
 1. kNN density (k = 15) on 10^6 points: tdakit against scikit-learn's NearestNeighbors with its default algorithm.
 2. Lazy witness complex, 10^6 witnesses, 500 landmarks, capped scale: time and peak memory over the input
-   (baseline: the size of the n x m distance matrix that tdakit never holds).
-3. Bootstrap band with 200 replicates: 2 local workers against serial (parallel efficiency = serial / (2 x parallel)),
+   (baseline: the size of the n x m distance matrix that tdakit never holds; peak = high-water mark reset at the
+   call's start, less the memory resident before it).
+3. Bootstrap band with 200 replicates: n_jobs=2 (this process and one helper process) against serial (parallel
+   efficiency = serial / (2 x parallel)),
    once with the workers starting ("cold") and once reusing them ("warm").
 Run: python benchmarks/scale.py
 """
 
-import resource
 import time
 
 import numpy as np
 
 import tdakit
 from tdakit import shapes
+from tdakit._memory import PeakMemory
 
 
-def rss() -> float:
-    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+def resident() -> int:
+    return next(int(line.split()[1]) * 1024 for line in open("/proc/self/status") if line.startswith("VmRSS:"))
 
 
 def knn_density():
@@ -41,12 +43,13 @@ def lazy_witness(n=1_000_000, m=500):
     points = shapes.torus(n, noise=0.05, rng=0)
     cloud = tdakit.load_cloud(points)
     marks = tdakit.select_landmarks(cloud, m, rng=0)
-    before = rss()
-    start = time.perf_counter()
-    diagrams = tdakit.compute_diagrams(cloud, landmarks=marks, filtration="witness",
-                                       max_scale=4 * marks.coverage_radius)
-    seconds = time.perf_counter() - start
-    grown = rss() - before
+    before = resident()
+    with PeakMemory() as peak:
+        start = time.perf_counter()
+        diagrams = tdakit.compute_diagrams(cloud, landmarks=marks, filtration="witness",
+                                           max_scale=4 * marks.coverage_radius)
+        seconds = time.perf_counter() - start
+    grown = peak.peak_bytes - before
     print(f"lazy witness, {n:,} witnesses, {m} landmarks, cap 4 eps: {seconds:.1f} s, peak growth "
           f"{grown / 2**20:.0f} MiB = {grown / points.nbytes:.2f} x input; a dense {n:,} x {m} matrix would be "
           f"{n * m * 8 / 2**20:.0f} MiB; {diagrams.params['n_simplices']:,} simplices")
@@ -70,6 +73,6 @@ def bootstrap_efficiency(n_boot=200):
 
 
 if __name__ == "__main__":
-    lazy_witness()  # first: its memory is read from the process's high-water mark
+    lazy_witness()
     knn_density()
     bootstrap_efficiency()
