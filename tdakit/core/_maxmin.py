@@ -1,23 +1,24 @@
-"""Maxmin (farthest point) selection with triangle-inequality pruning, compiled with numba.
+"""Maxmin (farthest point) selection, exact and fast, compiled with numba.
 
-Every candidate keeps its nearest landmark (its cell) and the distance to it. When
-landmark l joins, a cell j with radius r_j (its farthest member) and
-d(l_j, l) >= 2 r_j cannot lose a point to l, because for x in it
-d(x, l) >= d(l_j, l) - d(x, l_j) >= r_j >= d(x, l_j); inside a cell that can, only
-the members farther than d(l_j, l) / 2 from l_j need a distance. The next landmark is
-the farthest point, ties to the lowest candidate position, exactly as in the plain
-loop. Distances are in the metric's working space, where every metric tdakit embeds
-obeys the triangle inequality.
+Every candidate keeps its nearest landmark and the distance to it; the next landmark is
+the farthest candidate, ties to the lowest candidate position, exactly as in the plain
+loop (which adds coordinates in the same order, so even exact ties break the same way).
+Distances are in the metric's working space, where every metric tdakit embeds obeys the
+triangle inequality.
 
-Two layouts. With few coordinates (where the cell test prunes most of the cloud)
-each cell's members sit in a few contiguous runs of a private copy of the
-coordinates, so a scanned cell is read sequentially and a run whose farthest member
-is within the half distance is skipped unread. With many coordinates almost every
-cell is touched, and each new landmark makes one sequential pass over all points;
-for the Euclidean metric that pass reads a float32 copy laid out in blocks of
-points, and only points whose float32 distance is within its proven rounding bound
-of their current distance get the exact float64 distance, so the choices stay those
-of the float64 loop.
+Few coordinates (boxes): a private copy of the points is cut in place into boxes of at
+most 64 points by halving the widest side, and consecutive boxes are grouped. Every box
+and group keeps the largest distance of its points to their landmarks. When landmark y
+joins, a box whose gap to y is at least that distance cannot lose a point
+(d(x, y) >= gap >= D(x)) and is skipped unread; inside a scanned box, a point within half
+the distance from its landmark l to y cannot move either (d(x, y) >= d(l, y) - d(x, l)
+>= d(x, l)) and costs no distance. The next landmark is the best of the group maxima.
+
+Many coordinates (streaming): boxes stop pruning, so each new landmark makes one pass
+over all points. For the Euclidean metric the pass reads an int16 fixed-point copy in
+blocks of points, vectorised within each block and split over threads, and only the
+points whose rough distance is within its proven error bound of their current distance
+get the exact float64 distance (see ``_stream_euclidean``).
 """
 
 from __future__ import annotations
@@ -35,8 +36,7 @@ from tdakit.core.cloud import Cloud
 _SLACK = 1.0 + 1e-12  # prune only with a margin over rounding
 STREAM_ABOVE_DIMS = 4
 _LEAF_SIZE, _GROUP = 64, 32  # points per box, boxes per group
-_CHUNK = 256  # points per float32 block: each coordinate's row of a block is one vector loop
-_FLOAT32_SPREAD_LIMIT = 1e15  # beyond this, float32 squares could overflow: stream in float64
+_CHUNK = 256  # points per int16 block: each coordinate's row of a block is one vector loop
 _EUCLIDEAN, _MANHATTAN, _CHEBYSHEV, _MINKOWSKI, _PERIODIC = range(5)
 
 
@@ -106,42 +106,47 @@ def _by_boxes(kernel, cloud, work, candidates, first_pos, n_landmarks):
 
 def _by_stream(kernel, cloud, points, first_pos, n_landmarks):
     mode, p, box = distance_mode(cloud)
-    if mode == _EUCLIDEAN and np.max(np.ptp(points, axis=0)) <= _FLOAT32_SPREAD_LIMIT:
+    if mode == _EUCLIDEAN and np.isfinite(np.ptp(points, axis=0)).all():
         return _stream_euclidean(kernel, points, first_pos, n_landmarks)
     return kernel.maxmin_stream(points, first_pos, int(n_landmarks), mode, p, box, _SLACK)
 
 
 def _stream_euclidean(kernel, points, first_pos, n_landmarks):
-    """Maxmin with a float32 screen, split over threads: one pass over float32 blocks per landmark.
+    """Maxmin with a fixed-point screen, split over threads: one pass over int16 blocks per landmark.
 
-    With x~, y~ the float32 roundings of x - c and y - c, each rounding moves a point by at
-    most 2^-24 R (R the largest norm of x - c), so |x - y| >= |x~ - y~| - A with A = 2^-23 R;
-    the float32 sum of dims squared differences errs by at most (dims + 2) 2^-24 of itself
-    (N. J. Higham, "Accuracy and Stability of Numerical Algorithms", 2nd ed., SIAM 2002,
-    sec. 3.1). A is doubled and the relative bound taken as 2 (dims + 4) 2^-24 for margin.
-    A point whose float32 value reaches ((d slack + A) / (1 - relative))^2 cannot be nearer
-    to the new landmark than its distance d; every other point gets the exact float64
-    distance, so the choices are those of the float64 loop whatever the thread count.
+    Each coordinate is stored as q = round((x - c) / s), with s the widest side over 65,000,
+    so the stored point x^ = c + s q lies within sqrt(dims) s / 2 of x, and
+    |x - y| >= s sqrt(S) - A with S the sum of squared step differences and A = sqrt(dims) s.
+    The differences are exact in float32 (integers below 2^17); the squares and their sum
+    err by at most (dims + 2) 2^-24 of the result (N. J. Higham, "Accuracy and Stability of
+    Numerical Algorithms", 2nd ed., SIAM 2002, sec. 3.1). A is doubled and the relative
+    bound taken as 2 (dims + 4) 2^-24 for margin. A point whose float32 S reaches
+    ((d slack + A) / (s (1 - relative)))^2 cannot be nearer to the new landmark than its
+    distance d; every other point gets the exact float64 distance, so the choices are those
+    of the float64 loop whatever the thread count.
     """
     n, dims = points.shape
-    center = 0.5 * (points.min(axis=0) + points.max(axis=0))
-    packed, spread = kernel.pack_single(points, center)
-    unit = 2.0**-24
-    slack, absolute, relative = _SLACK, 4.0 * unit * spread, 2.0 * (dims + 4) * unit
+    low, high = points.min(axis=0), points.max(axis=0)
+    center, widest = 0.5 * (low + high), float(np.max(high - low))
+    step = widest / 65000.0 if widest > 0.0 else 1.0
+    packed = kernel.pack_fixed(points, center, step)
+    scale = (_SLACK, 2.0 * np.sqrt(dims) * step, 2.0 * (dims + 4) * 2.0**-24, step)
     to_mark = np.full(n, np.inf)
     bound = np.full(n, np.inf, dtype=np.float32)  # no distance yet: every point gets one from the first landmark
     owner = np.zeros(n, dtype=np.int32)
+    block_best, block_pick = np.full(packed.shape[0], -1.0), np.full(packed.shape[0], -1, dtype=np.int64)
     marks = np.empty((n_landmarks, dims))
     edges = np.linspace(0, packed.shape[0], worker_threads(n * dims) + 1).astype(np.int64)
     chosen, pick = [], first_pos
     with ThreadPoolExecutor(max_workers=edges.size - 1) as pool:
+        run = map if edges.size == 2 else pool.map  # one thread: no hand-over per landmark
         while len(chosen) < n_landmarks:
             new = len(chosen)
             chosen.append(pick)
             marks[new] = points[pick]
-            target = (points[pick] - center).astype(np.float32)
-            shared = (to_mark, owner, bound, marks, new, slack, absolute, relative)
-            results = list(pool.map(kernel.stream_blocks, *zip(*[
+            target = np.rint((points[pick] - center) / step).astype(np.int16)
+            shared = (to_mark, owner, bound, block_best, block_pick, marks, new, scale)
+            results = list(run(kernel.stream_blocks, *zip(*[
                 (points, packed, target, edges[t], edges[t + 1], *shared) for t in range(edges.size - 1)])))
             best, pick = max(results, key=lambda r: (r[0], -r[1]))  # the farthest; ties to the lowest position
             if best <= 0.0:

@@ -296,63 +296,70 @@ def maxmin_stream(points, first, n_landmarks, mode, p, box, slack):
     return chosen[:count], owner, to_mark
 
 @njit(cache=True)
-def pack_single(points, center):
-    """``points - center`` in float32, in blocks of _CHUNK points (shape (blocks, dims, _CHUNK),
-    padding at the centre), and the largest norm of ``points - center``.
-    """
+def pack_fixed(points, center, step):
+    """``round((points - center) / step)`` as int16 in blocks of _CHUNK points: shape (blocks, dims, _CHUNK)."""
     n, dims = points.shape
-    packed = np.zeros(((n + _CHUNK - 1) // _CHUNK, dims, _CHUNK), dtype=np.float32)
-    spread = 0.0
+    packed = np.zeros(((n + _CHUNK - 1) // _CHUNK, dims, _CHUNK), dtype=np.int16)
     for i in range(n):
-        norm = 0.0
         for k in range(dims):
-            gap = points[i, k] - center[k]
-            packed[i // _CHUNK, k, i % _CHUNK] = gap
-            norm += gap * gap
-        spread = max(spread, norm)
-    return packed, np.sqrt(spread)
+            packed[i // _CHUNK, k, i % _CHUNK] = np.int16(np.rint((points[i, k] - center[k]) / step))
+    return packed
+
 
 @njit(cache=True, inline="always")
-def screen_bound(d, slack, absolute, relative):
-    """The float32 squared distance at or above which a point at distance ``d`` cannot move."""
-    reach = (d * slack + absolute) / (1.0 - relative)
+def screen_bound(d, scale):
+    """The float32 squared step count at or above which a point at distance ``d`` cannot move.
+
+    ``scale`` = (slack, absolute, relative, step) of ``_stream_euclidean``.
+    """
+    slack, absolute, relative, step = scale
+    reach = (d * slack + absolute) / (step * (1.0 - relative))
     return np.float32(reach * reach * (1.0 + 2.0**-20))  # rounded up past float32's rounding
 
+
 @njit(cache=True, nogil=True, fastmath=False)
-def stream_blocks(points, packed, target, first_block, last_block, to_mark, owner, bound, marks, new,
-                  slack, absolute, relative):
+def stream_blocks(points, packed, target, first_block, last_block, to_mark, owner, bound, block_best, block_pick,
+                  marks, new, scale):
     """One landmark's pass over blocks [first_block, last_block): the farthest point after it.
 
-    Float32 squared distances to the new landmark, vectorised over each block's points,
-    screen out every point whose float32 value reaches its ``bound``; the rest get the
-    exact float64 distance. Ties go to the lowest position. Releases the GIL, so blocks
-    can be split between threads.
+    Float32 squared step counts to the new landmark, vectorised over each block's points,
+    screen out every point whose value reaches its ``bound``; the rest get the exact
+    float64 distance. A block where nothing moved keeps its farthest point. Ties go to the
+    lowest position. Releases the GIL, so blocks can be split between threads.
     """
-    n, dims = points.shape
+    n = points.shape[0]
     square = np.empty(_CHUNK, dtype=np.float32)
     listed = np.empty(_CHUNK, dtype=np.int64)
     best, pick = -1.0, -1
     for block in range(first_block, last_block):
         for i in range(_CHUNK):
             square[i] = 0.0
-        for k in range(dims):
+        for k in range(packed.shape[1]):
             row = packed[block, k]
-            value = target[k]
+            value = np.float32(target[k])
             for i in range(_CHUNK):
-                gap = row[i] - value
+                gap = np.float32(row[i]) - value  # exact: integers below 2^17
                 square[i] += gap * gap
         base = block * _CHUNK
-        size, count = min(_CHUNK, n - base), 0
+        size, hit = min(_CHUNK, n - base), False
         for i in range(size):
-            listed[count] = base + i
-            count += square[i] < bound[base + i]
-        for t in range(count):
-            i = listed[t]
-            d = dist(points, i, marks, new, _EUCLIDEAN, 2.0, target)
-            if d < to_mark[i]:
-                to_mark[i], owner[i] = d, new
-                bound[i] = screen_bound(d, slack, absolute, relative)
-        for i in range(base, base + size):
-            if to_mark[i] > best:
-                best, pick = to_mark[i], i
+            hit |= square[i] < bound[base + i]
+        if hit:
+            count, moved = 0, False
+            for i in range(size):
+                listed[count] = base + i
+                count += square[i] < bound[base + i]
+            for t in range(count):
+                i = listed[t]
+                d = dist(points, i, marks, new, _EUCLIDEAN, 2.0, marks[new])
+                if d < to_mark[i]:
+                    to_mark[i], owner[i], moved = d, new, True
+                    bound[i] = screen_bound(d, scale)
+            if moved:
+                block_best[block], block_pick[block] = -1.0, -1
+                for i in range(base, base + size):
+                    if to_mark[i] > block_best[block]:
+                        block_best[block], block_pick[block] = to_mark[i], i
+        if block_best[block] > best:
+            best, pick = block_best[block], block_pick[block]
     return best, pick

@@ -253,10 +253,10 @@ def test_box_route_sees_across_the_periodic_boundary(monkeypatch, global_seed):
     _assert_same_selection(tdakit.select_landmarks(cloud, 50, start=0), _plain_maxmin(cloud, 50, 0, monkeypatch))
 
 
-@pytest.mark.parametrize("kind", ["far_from_origin", "tiny_beside_huge", "beyond_float32"])
-def test_float32_screen_keeps_the_float64_choices(kind, monkeypatch, global_seed):
-    # The screen may only pass points on to exact distances, never decide: near-equal distances that
-    # float32 cannot tell apart must still be ordered as float64 orders them.
+@pytest.mark.parametrize("kind", ["far_from_origin", "tiny_beside_huge", "huge", "a_few_distinct"])
+def test_fixed_point_screen_keeps_the_float64_choices(kind, monkeypatch, global_seed):
+    # The screen may only pass points on to exact distances, never decide: distances that 16-bit steps cannot
+    # tell apart (points 1e-7 apart beside points 1e3 away) must still be ordered as float64 orders them.
     from tdakit.core import _maxmin
 
     rng = np.random.default_rng(global_seed)
@@ -265,15 +265,20 @@ def test_float32_screen_keeps_the_float64_choices(kind, monkeypatch, global_seed
         points = 1e7 + points * 1e-3
     elif kind == "tiny_beside_huge":
         points = np.vstack((points * 1e-7, [[1e3] * 8, [-1e3] * 8]))
+    elif kind == "huge":
+        points = points * 1e140  # near the largest span the cloud accepts (1e150)
     else:
-        points = points * 1e30
+        points = np.repeat(points[:5], 80, axis=0)
     used = []
     real = _maxmin._stream_euclidean
     monkeypatch.setattr(_maxmin, "_stream_euclidean", lambda *a: used.append(1) or real(*a))
-    cloud = tdakit.load_cloud(points)
-    fast = tdakit.select_landmarks(cloud, 60, start=2)
-    assert bool(used) == (kind != "beyond_float32")  # squares of 1e30 would overflow float32
-    _assert_same_selection(fast, _plain_maxmin(cloud, 60, 2, monkeypatch))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        cloud = tdakit.load_cloud(points)
+    count = min(60, cloud.n_distinct)
+    fast = tdakit.select_landmarks(cloud, count, start=2)
+    assert used
+    _assert_same_selection(fast, _plain_maxmin(cloud, count, 2, monkeypatch))
 
 
 @given(st.integers(1, 6), st.integers(2, 60), st.integers(0, 2**32 - 1), st.sampled_from([-8, 0, 8]))
