@@ -24,6 +24,10 @@ _FN = "diagram_distance"
 DENSE_ASSIGNMENT_LIMIT = 2000  # points in both diagrams: solve densely up to here (32 MB, about a second)
 SPARSE_PAIR_LIMIT = 2_000_000
 DENSE_CELL_LIMIT = 2.6e8  # about 16,000 x 16,000: ~2 GiB of cost matrix and plan
+# Up to here (about 5,000 x 5,000, 400 MB) mid-sized diagrams take the network simplex, which always terminates,
+# rather than scipy's sparse matching, which can cycle forever on tied inputs (scipy gh-17269): 3-4x slower on
+# generic diagrams (13 s against 4 s at 5,000 + 5,000 points), 2x faster on tied H0 diagrams (measured).
+TERMINATING_CELL_LIMIT = 2.5e7
 
 
 def as_diagram(points: ArrayLike, name: str = "a", function: str = _FN) -> NDArray[np.float64]:
@@ -212,9 +216,11 @@ def _wasserstein_power(a, b, order, ground) -> float:
     weight = np.concatenate((cost, cost_a, cost_b, np.zeros(rows.size)))
     if n + m <= DENSE_ASSIGNMENT_LIMIT:
         return _dense_assignment(n, m, rows, cols, cost, cost_a, cost_b)
-    # scipy drops zero weights, so shift all by the same amount (every perfect matching has n + m edges,
-    # same optimum). Shifting by max(weight) made scipy's LAPJVsp cycle forever on tied H0 diagrams; small
-    # problems take the dense solver below for the same reason (scipy gh-17269 reports other endless loops).
+    if (n + 1) * (m + 1) <= TERMINATING_CELL_LIMIT:
+        return _dense_transport(a, b, cost_a, cost_b, order, ground)
+    # Only very large diagrams reach scipy's sparse matching (see TERMINATING_CELL_LIMIT). scipy drops zero
+    # weights, so shift all by the same amount (every perfect matching has n + m edges, same optimum);
+    # shifting by max(weight) made its LAPJVsp cycle forever on tied H0 diagrams, a tiny shift did not.
     offset = 1e-300
     graph = sp.csr_matrix((weight + offset, (left, right)), shape=(n + m, n + m))
     row_ind, col_ind = min_weight_full_bipartite_matching(graph)

@@ -116,6 +116,22 @@ def test_dense_route_agrees_with_the_sparse_route():
     assert sparse == pytest.approx(dense, rel=1e-9)
 
 
+def test_mid_sized_tied_diagrams_take_the_terminating_solver(monkeypatch):
+    # 1,500 + 1,500 points with all births 0 and rounded deaths (the kind of input that made scipy's sparse
+    # matching cycle): the network simplex must answer, equal to scipy's dense assignment on the augmented
+    # problem (each diagram joined by the other's diagonal projections: common practice).
+    from tdakit.core import distances
+
+    rng = np.random.default_rng(0)
+    a, b = (np.column_stack((np.zeros(1500), np.round(rng.exponential(0.1, 1500), 3))) for _ in range(2))
+    monkeypatch.setattr(distances, "min_weight_full_bipartite_matching",
+                        lambda *args: pytest.fail("the sparse matching was used"))
+    value = tdakit.diagram_distance(a, b, kind="wasserstein")
+    ca, cb = a[:, 1] / 2, b[:, 1] / 2
+    rows, cols, cost = distances._useful_pairs(a, b, ca, cb, 1.0, "sup")
+    assert value == pytest.approx(distances._dense_assignment(1500, 1500, rows, cols, cost, ca, cb), rel=1e-9)
+
+
 def test_essential_classes():
     inf = np.inf
     assert tdakit.diagram_distance([[0, inf]], [[0, inf], [1, inf]]) == inf
