@@ -61,7 +61,7 @@ def bootstrap_efficiency(n_boot=200):
     timings = {}
     # Warm this process first (lazy imports, compiled kernels), so the serial baseline carries no one-off cost.
     tdakit.confidence_band(cloud, landmarks=marks, method="bootstrap", n_boot=4, rng=3)
-    for label, jobs in (("serial", 1), ("2 workers, cold", 2), ("2 workers, warm", 2)):
+    for label, jobs in (("serial", 1), ("n_jobs=2, cold", 2), ("n_jobs=2, warm", 2)):
         # "cold" starts the worker processes (and their imports); "warm" reuses them, as every later call does.
         start = time.perf_counter()
         tdakit.confidence_band(cloud, landmarks=marks, method="bootstrap", n_boot=n_boot, rng=3, n_jobs=jobs)
@@ -69,7 +69,7 @@ def bootstrap_efficiency(n_boot=200):
     serial = timings["serial"]
     print(f"bootstrap, {n_boot} replicates: serial {serial:.1f} s; " + "; ".join(
         f"{label} {timings[label]:.1f} s, parallel efficiency {serial / (2 * timings[label]):.0%}"
-        for label in ("2 workers, cold", "2 workers, warm")))
+        for label in ("n_jobs=2, cold", "n_jobs=2, warm")))
 
 
 if __name__ == "__main__":
