@@ -33,6 +33,7 @@ def dist(a, i, b, j, mode, p, box):
         return total ** (1.0 / p)
     return total
 
+
 @njit(cache=True)
 def farthest(radius, far, rank, count):
     """The farthest point over all cells (the next landmark), ties to the lowest rank."""
@@ -41,6 +42,7 @@ def farthest(radius, far, rank, count):
         if radius[j] > best or (radius[j] == best and rank[far[j]] < rank[pick]):
             best, pick = radius[j], far[j]
     return best, pick
+
 
 @njit(cache=True)
 def farthest_position(radius, far, count):
@@ -51,11 +53,14 @@ def farthest_position(radius, far, count):
             best, pick = radius[j], far[j]
     return best, pick
 
+
 @njit(cache=True, inline="always")
 def swap(points, rank, a, b):
+    """Exchange two slots (coordinates and rank)."""
     for k in range(points.shape[1]):
         points[a, k], points[b, k] = points[b, k], points[a, k]
     rank[a], rank[b] = rank[b], rank[a]
+
 
 @njit(cache=True)
 def bounds(points, lo, hi, low, high):
@@ -66,6 +71,7 @@ def bounds(points, lo, hi, low, high):
         for k in range(points.shape[1]):
             low[k] = min(low[k], points[i, k])
             high[k] = max(high[k], points[i, k])
+
 
 @njit(cache=True)
 def split(points, rank, lo, hi, axis, cut):
@@ -84,6 +90,7 @@ def split(points, rank, lo, hi, axis, cut):
         i += 1
         j -= 1
 
+
 @njit(cache=True)
 def build_leaves(points, rank, leaf_size):
     """Cut the points (in place) into boxes of at most ``leaf_size``, halving the widest side.
@@ -94,7 +101,7 @@ def build_leaves(points, rank, leaf_size):
     would need more than 48 cuts (points spread over many orders of magnitude) stay larger.
     """
     n, dims = points.shape
-    first = [0]
+    first = [0]  # a typed list of ints for numba, emptied at once
     first.clear()
     depth_cap = 48
     todo = np.empty((depth_cap + 2, 3), dtype=np.int64)  # depth-first: at most one pending node per level
@@ -130,6 +137,7 @@ def build_leaves(points, rank, leaf_size):
     first.append(n)
     return np.array(first, dtype=np.int64)
 
+
 @njit(cache=True, inline="always")
 def box_gap(low, high, node, marks, new, mode, p, box):
     """A lower bound on the distance from landmark ``new`` to any point in the node's box."""
@@ -153,6 +161,7 @@ def box_gap(low, high, node, marks, new, mode, p, box):
         return total ** (1.0 / p)
     return total
 
+
 @njit(cache=True)
 def scan_leaf(points, rank, to_mark, owner, lo, hi, marks, new, half, mode, p, box):
     """Give the leaf's points nearer to landmark ``new`` to it; the leaf's radius and farthest slot.
@@ -170,6 +179,7 @@ def scan_leaf(points, rank, to_mark, owner, lo, hi, marks, new, half, mode, p, b
             best, pick = to_mark[i], i
     return best, pick
 
+
 @njit(cache=True)
 def leaf_boxes(points, first, group):
     """Boxes of the leaves and of groups of ``group`` consecutive leaves."""
@@ -185,6 +195,7 @@ def leaf_boxes(points, first, group):
             for leaf in range(g * group, min(n_leaves, (g + 1) * group)):
                 group_high[g, k] = max(group_high[g, k], high[leaf, k])
     return low, high, group_low, group_high
+
 
 @njit(cache=True)
 def maxmin_tree(points, rank, first, n_landmarks, leaf_size, group, mode, p, box, slack):
@@ -235,6 +246,7 @@ def maxmin_tree(points, rank, first, n_landmarks, leaf_size, group, mode, p, box
             break
     return chosen[:count], owner, to_mark
 
+
 @njit(cache=True)
 def unshuffle(owner, to_mark, rank):
     """Each candidate's landmark and distance, in candidate order (the reordered copy already freed)."""
@@ -245,6 +257,7 @@ def unshuffle(owner, to_mark, rank):
         distance[rank[i]] = to_mark[i]
     return nearest, distance
 
+
 @njit(cache=True)
 def half_distances(marks, radius, far, half, count, new, mode, p, box, slack):
     """Half the distance from each cell's landmark to the new one; -1 for cells it cannot touch."""
@@ -254,6 +267,7 @@ def half_distances(marks, radius, far, half, count, new, mode, p, box, slack):
         half[j] = 0.5 * between / slack if touched else -1.0
         if touched:
             radius[j], far[j] = -1.0, -1
+
 
 @njit(cache=True)
 def maxmin_stream(points, first, n_landmarks, mode, p, box, slack):
@@ -294,6 +308,7 @@ def maxmin_stream(points, first, n_landmarks, mode, p, box, slack):
                 radius[j], far[j] = to_mark[i], i
         count += 1
     return chosen[:count], owner, to_mark
+
 
 @njit(cache=True)
 def pack_fixed(points, center, step):
