@@ -244,7 +244,7 @@ def provenance(cloud: Cloud, options: AnalysisOptions, seed: int) -> dict:
     source = {"source": cloud.source, "file_checksum": cloud.source_checksum, "fingerprint": cloud.fingerprint,
               "n_points": cloud.n_points, "n_dims": cloud.n_dims, "columns": list(cloud.columns),
               "metric": cloud.metric.to_dict(), "standardized": cloud.shift is not None,
-              "n_duplicates": cloud.n_duplicates}
+              "n_duplicates": cloud.n_duplicates, "read_options": dict(cloud.read_options)}
     return {"versions": _versions(), "platform": platform.platform(), "input": source,
             "options": options.to_dict(), "seed": seed,
             "created": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds")}
@@ -291,10 +291,11 @@ def _reload(recorded: dict) -> Cloud:
         raise DataFileNotFoundError(f"The run's input file {str(path)!r} no longer exists; load it from its new "
                                     f"place and pass it as rerun(run, cloud=...).", parameter="cloud")
     metric = recorded["metric"]
-    columns = recorded["columns"] or None
-    cloud = load_cloud(path, columns=columns, metric=metric["name"], box=metric.get("box"),
+    # Runs made before reading options were recorded name their columns instead.
+    reading = recorded.get("read_options", {"columns": recorded["columns"] or None})
+    cloud = load_cloud(path, metric=metric["name"], box=metric.get("box"),
                        p=metric.get("p") if metric["name"] == "minkowski" else None,
-                       standardize=recorded["standardized"])
+                       standardize=recorded["standardized"], **reading)
     if cloud.source_checksum != recorded["file_checksum"]:
         raise InvalidDataError(f"The file {str(path)!r} changed since the run was made (checksum differs).",
                                parameter="cloud")

@@ -61,6 +61,23 @@ def test_rerun_reloads_the_file_and_reproduces(circle_file):
     assert again.band.radii == run.band.radii
 
 
+def test_rerun_reads_a_file_the_way_it_was_read(tmp_path):
+    # One array of two in an .npz, and a ';'-separated table: the run records key, delimiter and header,
+    # survives a run file, and rerun reads the same numbers again.
+    from tdakit.io import load_run, save_run
+
+    ring = circle(300, noise=0.02, rng=4)
+    np.savez(tmp_path / "two.npz", other=ring[::-1] * 3, ring=ring)
+    np.savetxt(tmp_path / "ring.txt", ring, delimiter=";", header="a;b", comments="")
+    for path, reading in ((tmp_path / "two.npz", {"key": "ring"}),
+                          (tmp_path / "ring.txt", {"delimiter": ";", "header": True})):
+        run = analyze(tdakit.load_cloud(path, **reading), FAST, rng=5)
+        assert run.provenance["input"]["read_options"] == reading
+        save_run(run, tmp_path / "run.tdkrun")
+        again = rerun(load_run(tmp_path / "run.tdkrun"))
+        assert_same(again.diagrams.pairs, run.diagrams.pairs)
+
+
 def test_rerun_refuses_other_data(circle_file):
     run = analyze(tdakit.load_cloud(circle_file), FAST, rng=5)
     other = tdakit.load_cloud(circle(400, rng=99))

@@ -47,6 +47,9 @@ class Cloud:
         Standardisation applied at load time: ``points = (raw - shift) / scale``.
     source_checksum : str or None
         SHA-256 of the input file, when the cloud was read from one.
+    read_options : tuple of (name, value) pairs
+        The file-reading options given to ``load_cloud`` (``key``, ``delimiter``, ``header``,
+        ``columns``), so that a run can read the same file the same way again.
     """
 
     points: NDArray[np.float64]
@@ -58,6 +61,7 @@ class Cloud:
     shift: NDArray[np.float64] | None = field(default=None, repr=False)
     scale: NDArray[np.float64] | None = field(default=None, repr=False)
     source_checksum: str | None = None
+    read_options: tuple = ()
 
     @property
     def n_points(self) -> int:
@@ -178,6 +182,7 @@ def make_cloud(
     source: str = "array",
     standardize: bool = False,
     source_checksum: str | None = None,
+    read_options: tuple = (),
 ) -> Cloud:
     """Validate coordinates (or a distance matrix) against ``metric`` and build a :class:`Cloud`."""
     if metric.name == "precomputed":
@@ -186,7 +191,8 @@ def make_cloud(
         matrix = check_distance_matrix(points, "points")
         n_dup = int(np.triu(matrix == 0.0, k=1).any(axis=0).sum())
         empty = np.zeros((matrix.shape[0], 0))
-        return _finish(Cloud(empty, metric, (), source, matrix, n_dup, source_checksum=source_checksum))
+        return _finish(Cloud(empty, metric, (), source, matrix, n_dup, source_checksum=source_checksum,
+                              read_options=read_options))
     array = as_point_array(points)
     cols = tuple(columns) if columns is not None else tuple(f"x{i}" for i in range(array.shape[1]))
     shift = scale = None
@@ -196,7 +202,8 @@ def make_cloud(
     from tdakit.core._checks_metric import check_points_for_metric
 
     metric = check_points_for_metric(array, metric)
-    cloud = Cloud(array, metric, cols, source, None, count_duplicates(array), shift, scale, source_checksum)
+    cloud = Cloud(array, metric, cols, source, None, count_duplicates(array), shift, scale, source_checksum,
+                  read_options)
     return _finish(cloud)
 
 

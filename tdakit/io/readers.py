@@ -94,11 +94,14 @@ def load_cloud(
     if isinstance(source, Cloud):
         raise fail("source", "load_cloud", "an array, a DataFrame or a file path (it is already a Cloud)",
                    source)
-    checksum = None
+    checksum, read_options = None, ()
     if isinstance(source, (str, os.PathLike)):
         path = Path(source)
         table, names, checksum = _read_file(path, delimiter=delimiter, header=header, key=key)
         label = str(path.resolve())
+        given = (("key", key), ("delimiter", delimiter), ("header", header),
+                 ("columns", None if columns is None else list(columns)))
+        read_options = tuple((name, value) for name, value in given if value is not None)
     elif _is_dataframe(source):
         names = tuple(str(c) for c in source.columns)
         positions = _positions(columns, names, len(names))
@@ -110,7 +113,7 @@ def load_cloud(
         table, names, label = source, None, "array"
     table, names = _select_columns(table, names, columns)
     return make_cloud(table, metric_obj, columns=names, source=label, standardize=standardize,
-                      source_checksum=checksum)
+                      source_checksum=checksum, read_options=read_options)
 
 
 def _no_file_options(delimiter, header, key):
