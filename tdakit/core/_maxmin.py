@@ -155,8 +155,14 @@ def _stream_euclidean(kernel, points, first_pos, n_landmarks):
 
 
 def worker_threads(size: int) -> int:
-    """Threads for a compiled pass over ``size`` numbers: one below a million, else up to four cores."""
+    """Threads for a compiled pass over ``size`` numbers: one below a million, else up to four of the cores
+    this process may use, and no more than ``OMP_NUM_THREADS`` when that is set (Dask's workers set it to 1,
+    so cluster jobs are not oversubscribed).
+    """
     if size < 2**20:
         return 1
     cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    limit = os.environ.get("OMP_NUM_THREADS", "")
+    if limit.strip().isdigit() and int(limit) > 0:
+        cores = min(cores, int(limit))
     return max(1, min(4, cores))

@@ -293,3 +293,31 @@ def test_every_route_matches_the_plain_loop_on_random_clouds(dims, n, seed, expo
     fast = tdakit.select_landmarks(cloud, count, start=0)
     with pytest.MonkeyPatch.context() as patch:
         _assert_same_selection(fast, _plain_maxmin(cloud, count, 0, patch))
+
+
+def test_thread_count_follows_the_environment(monkeypatch):
+    # Dask's workers set OMP_NUM_THREADS=1 (common practice for process-parallel jobs): the compiled passes
+    # must then stay on one thread; small passes never split.
+    from tdakit.core._maxmin import worker_threads
+
+    assert worker_threads(1000) == 1
+    monkeypatch.setenv("OMP_NUM_THREADS", "1")
+    assert worker_threads(10**8) == 1
+    monkeypatch.setenv("OMP_NUM_THREADS", "not a number")
+    assert 1 <= worker_threads(10**8) <= 4
+
+
+def test_threads_do_not_change_the_landmarks(monkeypatch):
+    # The streaming pass splits its blocks over threads and combines by exact maxima (lowest position on
+    # ties): one thread and several must choose the same landmarks.
+    from tdakit.core import _maxmin
+
+    points = np.round(np.random.default_rng(3).normal(size=(6000, 6)), 1)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        cloud = tdakit.load_cloud(points)
+    runs = []
+    for threads in (1, 3):
+        monkeypatch.setattr(_maxmin, "worker_threads", lambda size, t=threads: t)
+        runs.append(tdakit.select_landmarks(cloud, 200, start=0))
+    _assert_same_selection(runs[1], runs[0])
