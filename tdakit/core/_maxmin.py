@@ -155,9 +155,11 @@ def _stream_euclidean(kernel, points, first_pos, n_landmarks):
 
 
 def worker_threads(size: int) -> int:
-    """Threads for a compiled pass over ``size`` numbers: one below a million, else up to four of the cores
-    this process may use, and no more than ``OMP_NUM_THREADS`` when that is set (Dask's workers set it to 1,
-    so cluster jobs are not oversubscribed).
+    """Threads for a compiled pass over ``size`` numbers.
+
+    One below a million numbers; else up to four of the cores this process may use, and no more
+    than ``OMP_NUM_THREADS`` when that is set (Dask's workers set it to 1, so cluster jobs are not
+    oversubscribed).
     """
     if size < 2**20:
         return 1
