@@ -163,15 +163,21 @@ def box_gap(low, high, node, marks, new, mode, p, box):
 
 
 @njit(cache=True)
-def scan_leaf(points, rank, to_mark, owner, lo, hi, marks, new, half, mode, p, box):
+def scan_leaf(points, rank, to_mark, owner, lo, hi, marks, new, half, stamp, mode, p, box, slack):
     """Give the leaf's points nearer to landmark ``new`` to it; the leaf's radius and farthest slot.
 
-    A point within ``half[j]`` of its landmark j cannot be nearer to the new one
-    (d(x, new) >= d(l_j, new) - d(x, l_j) >= d(x, l_j)) and costs no distance.
+    A point within half the distance from its landmark j to the new one cannot be nearer to
+    the new one (d(x, new) >= d(l_j, new) - d(x, l_j) >= d(x, l_j)) and costs no distance.
+    That half distance is worked out the first time a landmark's point is met in this pass
+    (``stamp[j] == new`` after), so a pass costs nothing for landmarks far away.
     """
     best, pick = -1.0, -1
     for i in range(lo, hi):
-        if to_mark[i] > half[owner[i]]:
+        j = owner[i]
+        if stamp[j] != new:
+            stamp[j] = new
+            half[j] = 0.5 * dist(marks, j, marks, new, mode, p, box) / slack
+        if to_mark[i] > half[j]:
             d = dist(points, i, marks, new, mode, p, box)
             if d < to_mark[i]:
                 to_mark[i], owner[i] = d, new
@@ -214,7 +220,8 @@ def maxmin_tree(points, rank, first, n_landmarks, leaf_size, group, mode, p, box
     owner = np.zeros(n, dtype=np.int32)
     marks = np.empty((n_landmarks, dims))
     chosen = np.empty(n_landmarks, dtype=np.int64)
-    half = np.full(n_landmarks, -1.0)  # no point is within -1 of its landmark: all get a distance
+    half = np.empty(n_landmarks)
+    stamp = np.full(n_landmarks, -1, dtype=np.int64)  # the pass in which half[j] was last worked out
     leaf_r, leaf_f = np.empty(n_leaves), np.empty(n_leaves, dtype=np.int64)
     group_r, group_f = np.full(n_groups, -1.0), np.full(n_groups, -1, dtype=np.int64)
     slot = 0
@@ -227,8 +234,6 @@ def maxmin_tree(points, rank, first, n_landmarks, leaf_size, group, mode, p, box
         new = count
         marks[new] = points[slot]
         chosen[new] = rank[slot]
-        for j in range(new):
-            half[j] = 0.5 * dist(marks, j, marks, new, mode, p, box) / slack
         for g in range(n_groups):
             if new > 0 and box_gap(group_low, group_high, g, marks, new, mode, p, box) >= group_r[g] * slack:
                 continue
@@ -236,7 +241,8 @@ def maxmin_tree(points, rank, first, n_landmarks, leaf_size, group, mode, p, box
             for leaf in range(g * group, min(n_leaves, (g + 1) * group)):
                 if new == 0 or box_gap(low, high, leaf, marks, new, mode, p, box) < leaf_r[leaf] * slack:
                     leaf_r[leaf], leaf_f[leaf] = scan_leaf(points, rank, to_mark, owner, starts[leaf],
-                                                           starts[leaf + 1], marks, new, half, mode, p, box)
+                                                           starts[leaf + 1], marks, new, half, stamp, mode, p,
+                                                           box, slack)
                 if leaf_r[leaf] > best or (leaf_r[leaf] == best and rank[leaf_f[leaf]] < rank[pick]):
                     best, pick = leaf_r[leaf], leaf_f[leaf]
             group_r[g], group_f[g] = best, pick
