@@ -50,9 +50,10 @@ def lazy_witness_edges(cloud: Cloud, landmarks: NDArray[np.intp], nu: int, cap: 
 
 
 def _compiled_edges(cloud, landmarks, nu, cap):
-    """The upper triangle of the edge values from the compiled kernel, witnesses split over threads; None
-    without numba or for a given distance matrix. The minimum over threads is exact, so the values do not
-    depend on the thread count.
+    """The edge values (upper triangle) from the compiled kernel; None without numba or for a given matrix.
+
+    Witnesses are split over threads, each lowering its own matrix; the minimum over threads
+    is exact, so the values do not depend on the thread count.
     """
     if cloud.distance_matrix is not None:
         return None
