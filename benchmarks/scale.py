@@ -19,10 +19,6 @@ from tdakit import shapes
 from tdakit._memory import PeakMemory
 
 
-def resident() -> int:
-    return next(int(line.split()[1]) * 1024 for line in open("/proc/self/status") if line.startswith("VmRSS:"))
-
-
 def knn_density():
     from sklearn.neighbors import NearestNeighbors
 
@@ -43,13 +39,12 @@ def lazy_witness(n=1_000_000, m=500):
     points = shapes.torus(n, noise=0.05, rng=0)
     cloud = tdakit.load_cloud(points)
     marks = tdakit.select_landmarks(cloud, m, rng=0)
-    before = resident()
     with PeakMemory() as peak:
         start = time.perf_counter()
         diagrams = tdakit.compute_diagrams(cloud, landmarks=marks, filtration="witness",
                                            max_scale=4 * marks.coverage_radius)
         seconds = time.perf_counter() - start
-    grown = peak.peak_bytes - before
+    grown = peak.growth_bytes
     print(f"lazy witness, {n:,} witnesses, {m} landmarks, cap 4 eps: {seconds:.1f} s, peak growth "
           f"{grown / 2**20:.0f} MiB = {grown / points.nbytes:.2f} x input; a dense {n:,} x {m} matrix would be "
           f"{n * m * 8 / 2**20:.0f} MiB; {diagrams.params['n_simplices']:,} simplices")

@@ -11,6 +11,28 @@ from numba import njit
 from tdakit.core._maxmin import _CHEBYSHEV, _CHUNK, _EUCLIDEAN, _MANHATTAN, _MINKOWSKI, _PERIODIC
 
 
+@njit(cache=True, inline="always")
+def add_gap(total, gap, mode, p):
+    """Fold one coordinate's gap into a running working-space distance."""
+    if mode == _EUCLIDEAN or mode == _PERIODIC:
+        return total + gap * gap
+    if mode == _MANHATTAN:
+        return total + gap
+    if mode == _CHEBYSHEV:
+        return max(total, gap)
+    return total + gap**p
+
+
+@njit(cache=True, inline="always")
+def finish(total, mode, p):
+    """The distance from its running total (root of the sum where the metric has one)."""
+    if mode == _EUCLIDEAN or mode == _PERIODIC:
+        return np.sqrt(total)
+    if mode == _MINKOWSKI:
+        return total ** (1.0 / p)
+    return total
+
+
 @njit(cache=True, fastmath=False, inline="always")
 def dist(a, i, b, j, mode, p, box):
     """Working-space distance between row i of ``a`` and row j of ``b``, summed in coordinate order."""
@@ -19,19 +41,8 @@ def dist(a, i, b, j, mode, p, box):
         gap = abs(a[i, k] - b[j, k])
         if mode == _PERIODIC:
             gap = min(gap, box[k] - gap)
-        if mode == _EUCLIDEAN or mode == _PERIODIC:
-            total += gap * gap
-        elif mode == _MANHATTAN:
-            total += gap
-        elif mode == _CHEBYSHEV:
-            total = max(total, gap)
-        else:
-            total += gap**p
-    if mode == _EUCLIDEAN or mode == _PERIODIC:
-        return np.sqrt(total)
-    if mode == _MINKOWSKI:
-        return total ** (1.0 / p)
-    return total
+        total = add_gap(total, gap, mode, p)
+    return finish(total, mode, p)
 
 
 @njit(cache=True)
@@ -147,19 +158,8 @@ def box_gap(low, high, node, marks, new, mode, p, box):
         gap = max(low[node, k] - y, y - high[node, k], 0.0)
         if mode == _PERIODIC and gap > 0.0:
             gap = min(gap, box[k] - max(abs(y - low[node, k]), abs(y - high[node, k])))
-        if mode == _EUCLIDEAN or mode == _PERIODIC:
-            total += gap * gap
-        elif mode == _MANHATTAN:
-            total += gap
-        elif mode == _CHEBYSHEV:
-            total = max(total, gap)
-        else:
-            total += gap**p
-    if mode == _EUCLIDEAN or mode == _PERIODIC:
-        return np.sqrt(total)
-    if mode == _MINKOWSKI:
-        return total ** (1.0 / p)
-    return total
+        total = add_gap(total, gap, mode, p)
+    return finish(total, mode, p)
 
 
 @njit(cache=True)
@@ -195,11 +195,11 @@ def leaf_boxes(points, first, group):
     group_low, group_high = np.empty((n_groups, dims)), np.empty((n_groups, dims))
     for leaf in range(n_leaves):
         bounds(points, first[leaf], first[leaf + 1], low[leaf], high[leaf])
-    for g in range(n_groups):
-        bounds(low, g * group, min(n_leaves, (g + 1) * group), group_low[g], group_high[g])
+    group_low[:], group_high[:] = np.inf, -np.inf
+    for leaf in range(n_leaves):
         for k in range(dims):
-            for leaf in range(g * group, min(n_leaves, (g + 1) * group)):
-                group_high[g, k] = max(group_high[g, k], high[leaf, k])
+            group_low[leaf // group, k] = min(group_low[leaf // group, k], low[leaf, k])
+            group_high[leaf // group, k] = max(group_high[leaf // group, k], high[leaf, k])
     return low, high, group_low, group_high
 
 
