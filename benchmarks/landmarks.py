@@ -29,7 +29,7 @@ with PeakMemory() as peak:
     elif who == "gudhi":
         gudhi.subsampling.choose_n_farthest_points(points=points, nb_points=m, starting_point=0)
     else:
-        from tdakit.core.landmarks import reference_maxmin
+        from tdakit.core.geometry.landmarks import reference_maxmin
         reference_maxmin(cloud, m, np.arange(n), 0)
     seconds = time.perf_counter() - start
 print(json.dumps({"seconds": seconds, "peak_over_input": peak.growth_bytes / points.nbytes}))

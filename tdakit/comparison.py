@@ -9,12 +9,12 @@ import numpy as np
 
 from tdakit._validation import check_int, fail
 from tdakit.config import ComplexOptions
-from tdakit.core.cloud import Cloud
-from tdakit.core.compare import PermutationResult, permutation_test
-from tdakit.core.diagrams import Diagrams
-from tdakit.core.filtrations import compute_diagrams
-from tdakit.core.landmarks import select_landmarks
-from tdakit.core.replicates import root_seed
+from tdakit.core.geometry.cloud import Cloud
+from tdakit.core.geometry.landmarks import select_landmarks
+from tdakit.core.inference.compare import PermutationResult, permutation_test
+from tdakit.core.inference.replicates import root_seed
+from tdakit.core.topology.diagrams import Diagrams
+from tdakit.core.topology.filtrations import compute_diagrams
 from tdakit.errors import TdakitWarning
 
 __all__ = ["CatalogueComparison", "compare_catalogues"]

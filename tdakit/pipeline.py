@@ -20,14 +20,14 @@ from numpy.typing import NDArray
 from tdakit._memory import PeakMemory
 from tdakit._validation import fail
 from tdakit.config import AnalysisOptions
-from tdakit.core.bands import Band
-from tdakit.core.cloud import Cloud
-from tdakit.core.confidence import confidence_band
-from tdakit.core.diagrams import Diagrams
-from tdakit.core.filtrations import compute_diagrams
-from tdakit.core.landmarks import Landmarks, select_landmarks
-from tdakit.core.replicates import root_seed
-from tdakit.core.tables import significance_table
+from tdakit.core.geometry.cloud import Cloud
+from tdakit.core.geometry.landmarks import Landmarks, select_landmarks
+from tdakit.core.inference.bands import Band
+from tdakit.core.inference.confidence import confidence_band
+from tdakit.core.inference.replicates import root_seed
+from tdakit.core.inference.tables import significance_table
+from tdakit.core.topology.diagrams import Diagrams
+from tdakit.core.topology.filtrations import compute_diagrams
 from tdakit.errors import InvalidDataError
 
 __all__ = ["RunResult", "analyze", "rerun", "PREVIEW_POINTS"]
@@ -111,7 +111,7 @@ class RunResult:
         """The same run with its band re-read at another level (instant: no replicate is recomputed)."""
         import dataclasses
 
-        from tdakit.core.confidence import band_at_level
+        from tdakit.core.inference.confidence import band_at_level
 
         if self.band is None:
             raise fail("level", "RunResult.at_level", "used only on a run with a band", level)

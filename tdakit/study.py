@@ -20,13 +20,13 @@ import numpy as np
 from tdakit._memory import PeakMemory
 from tdakit._validation import fail
 from tdakit.config import StudyOptions
-from tdakit.core.cloud import Cloud
-from tdakit.core.confidence import check_subsample_allowed, confidence_band, hausdorff_level, subsample_band
-from tdakit.core.diagrams import Diagrams
-from tdakit.core.distances import diagram_distance
-from tdakit.core.filtrations import compute_diagrams, stability_constant
-from tdakit.core.landmarks import select_landmarks
-from tdakit.core.replicates import config_fingerprint, root_seed, run_replicates
+from tdakit.core.geometry.cloud import Cloud
+from tdakit.core.geometry.landmarks import select_landmarks
+from tdakit.core.inference.confidence import check_subsample_allowed, confidence_band, hausdorff_level, subsample_band
+from tdakit.core.inference.replicates import config_fingerprint, root_seed, run_replicates
+from tdakit.core.topology.diagrams import Diagrams
+from tdakit.core.topology.distances import diagram_distance
+from tdakit.core.topology.filtrations import compute_diagrams, stability_constant
 from tdakit.errors import TdakitWarning
 
 __all__ = ["StudyResult", "Recommendation", "subsampling_study"]
@@ -121,7 +121,7 @@ def subsampling_study(
         Root randomness; cell i uses child i of ``SeedSequence(seed)``, so results are
         identical for any ``n_jobs`` or executor.
     n_jobs, executor, progress, checkpoint
-        As in :func:`tdakit.core.replicates.run_replicates`: local processes, any
+        As in :func:`tdakit.core.inference.replicates.run_replicates`: local processes, any
         executor with ``submit`` (a Dask client included), ``progress(done, total)``
         per finished chunk of cells, and a resumable checkpoint file.
 

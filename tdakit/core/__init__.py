@@ -1,21 +1,43 @@
-"""The computational core: clouds, metrics, landmarks, filtrations, diagrams and distances.
+"""The computational core, in three packages that follow the science.
+
+geometry
+    Clouds and metrics, distances and neighbours, density, landmark selection.
+topology
+    Filtrations on landmarks, persistence diagrams, diagram distances, landscapes.
+inference
+    Confidence bands, replicates, per-feature p-values, significance tables, group tests.
 
 Plain functions and small frozen dataclasses over numpy arrays; imports only
 numpy, scipy, gudhi, scikit-learn and joblib (persim and POT lazily).
 """
 
-from tdakit.core.bands import Band
-from tdakit.core.cloud import Cloud
-from tdakit.core.compare import PermutationResult, permutation_test
-from tdakit.core.confidence import band_at_level, confidence_band
-from tdakit.core.density import densest_points, knn_density, knn_radius
-from tdakit.core.diagrams import Diagrams
-from tdakit.core.distances import diagram_distance
-from tdakit.core.filtrations import compute_diagrams, stability_constant, witness_edge_values
-from tdakit.core.landmarks import Landmarks, landmarks_from_indices, select_landmarks
-from tdakit.core.landscapes import persistence_landscape
-from tdakit.core.metrics import METRICS, Metric
-from tdakit.core.tables import significance_table
+from tdakit.core.geometry import (
+    METRICS,
+    Cloud,
+    Landmarks,
+    Metric,
+    densest_points,
+    knn_density,
+    knn_radius,
+    landmarks_from_indices,
+    select_landmarks,
+)
+from tdakit.core.inference import (
+    Band,
+    PermutationResult,
+    band_at_level,
+    confidence_band,
+    permutation_test,
+    significance_table,
+)
+from tdakit.core.topology import (
+    Diagrams,
+    compute_diagrams,
+    diagram_distance,
+    persistence_landscape,
+    stability_constant,
+    witness_edge_values,
+)
 
 __all__ = [
     "Band", "Cloud", "Diagrams", "Landmarks", "METRICS", "Metric", "PermutationResult", "band_at_level",

@@ -10,8 +10,8 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from tdakit._validation import check_bool, fail
-from tdakit.core.cloud import Cloud, make_cloud
-from tdakit.core.metrics import make_metric
+from tdakit.core.geometry.cloud import Cloud, make_cloud
+from tdakit.core.geometry.metrics import make_metric
 from tdakit.errors import DataFileNotFoundError, InvalidDataError
 
 __all__ = ["load_cloud", "FILE_TYPES"]

@@ -212,7 +212,7 @@ def load_run(path):
 
 
 def _diagrams(data):
-    from tdakit.core.diagrams import Diagrams
+    from tdakit.core.topology.diagrams import Diagrams
 
     return Diagrams(tuple(data["pairs"]), tuple(data["cutoff_flags"]), tuple(data["birth_vertices"]),
                     tuple(data["death_vertices"]), data["filtration"], data["units"], float(data["max_scale"]),
@@ -221,8 +221,8 @@ def _diagrams(data):
 
 def _build(data):
     from tdakit.config import AnalysisOptions
-    from tdakit.core.bands import Band
-    from tdakit.core.landmarks import Landmarks
+    from tdakit.core.geometry.landmarks import Landmarks
+    from tdakit.core.inference.bands import Band
     from tdakit.pipeline import RunResult
 
     diagrams = _diagrams(data["diagrams"])

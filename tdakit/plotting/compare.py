@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from tdakit._validation import fail
-from tdakit.core.compare import PermutationResult
+from tdakit.core.inference.compare import PermutationResult
 from tdakit.plotting.diagrams import plot_diagram
 from tdakit.plotting.style import FEATURE_COLOR, _axes, new_figure, styled
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from tdakit.core.landscapes import persistence_landscape
+from tdakit.core.topology.landscapes import persistence_landscape
 from tdakit.plotting.diagrams import _check, _dims, _extent
 from tdakit.plotting.style import _axes, axis_units, color, house_style, styled
 

@@ -8,8 +8,8 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Polygon
 
 from tdakit._validation import fail
-from tdakit.core.bands import Band
-from tdakit.core.diagrams import Diagrams
+from tdakit.core.inference.bands import Band
+from tdakit.core.topology.diagrams import Diagrams
 from tdakit.plotting.style import BAND_COLOR, _axes, axis_units, color, house_style, marker, styled
 
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import ipywidgets as widgets
 
 from tdakit._validation import fail
-from tdakit.core.cloud import Cloud
+from tdakit.core.geometry.cloud import Cloud
 from tdakit.plotting import plot_permutation_null
 from tdakit.widgets.common import LogPane, RunControls, image, show
 from tdakit.widgets.jobs import run_comparison

@@ -10,7 +10,7 @@ import ipywidgets as widgets
 
 from tdakit._validation import fail
 from tdakit.config import AnalysisOptions, BandOptions
-from tdakit.core.cloud import Cloud
+from tdakit.core.geometry.cloud import Cloud
 from tdakit.errors import InvalidDataError
 from tdakit.plotting import plot_barcode, plot_cloud, plot_diagram, significant_features, write_run_figures
 from tdakit.widgets.common import LogPane, RunControls, image, show

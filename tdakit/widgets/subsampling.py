@@ -8,7 +8,7 @@ import ipywidgets as widgets
 
 from tdakit._validation import fail
 from tdakit.config import AnalysisOptions, BandOptions, StudyOptions
-from tdakit.core.cloud import Cloud
+from tdakit.core.geometry.cloud import Cloud
 from tdakit.plotting import plot_run_pair, plot_study
 from tdakit.widgets.common import LogPane, RunControls, image, show
 from tdakit.widgets.explorer import SAMPLING_CHOICES

@@ -45,7 +45,7 @@ def test_metadata_is_readable_json(run, tmp_path):
 
 def test_loaded_run_gives_its_table_without_recomputing(run, tmp_path, monkeypatch):
     path = run.save(tmp_path / "r")
-    import tdakit.core.filtrations as filtrations
+    import tdakit.core.topology.filtrations as filtrations
 
     monkeypatch.setattr(filtrations, "compute_diagrams", lambda *a, **k: pytest.fail("recomputed"))
     loaded = load_run(path)

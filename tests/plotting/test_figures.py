@@ -7,8 +7,8 @@ import numpy as np
 import pytest
 
 import tdakit
-from tdakit.core.bands import Band
-from tdakit.core.diagrams import Diagrams
+from tdakit.core.inference.bands import Band
+from tdakit.core.topology.diagrams import Diagrams
 from tdakit.pipeline import analyze
 from tdakit.plotting import (
     figure_bytes,

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from tdakit._validation import fail
-from tdakit.core.diagrams import Diagrams
+from tdakit.core.topology.diagrams import Diagrams
 
 __all__ = ["significance_table"]
 

@@ -8,7 +8,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tdakit._validation import check_int, fail
-from tdakit.core.diagrams import Diagrams
+from tdakit.core.topology.diagrams import Diagrams
 from tdakit.errors import InvalidDataError
 
 __all__ = ["Band"]
@@ -95,7 +95,7 @@ class Band:
 
     def table(self, diagrams: Diagrams | None = None):
         """Tidy pandas table of every feature with its significance (see :func:`significance_table`)."""
-        from tdakit.core.tables import significance_table
+        from tdakit.core.inference.tables import significance_table
 
         return significance_table(self.diagrams if diagrams is None else diagrams, self)
 

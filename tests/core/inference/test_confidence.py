@@ -8,7 +8,7 @@ from scipy.stats import binom
 
 import tdakit
 from tdakit import shapes
-from tdakit.core import kde
+from tdakit.core.geometry import kde
 
 SQRT3 = np.sqrt(3.0)
 # Continuous unit circle: Rips H1 = (0, sqrt 3) (Adamaszek & Adams, Pacific J. Math. 290 (2017)).
@@ -287,7 +287,7 @@ def test_permutation_same_distribution_is_not_significant():
 def test_band_at_level_equals_a_fresh_band_at_that_level(method, extra):
     # Identity test: the radius is a quantile of level-free replicates, so re-reading them must give the
     # band computed from scratch at the new level with the same seed.
-    from tdakit.core.confidence import band_at_level
+    from tdakit.core.inference.confidence import band_at_level
 
     cloud = tdakit.load_cloud(tdakit.shapes.circle(300, noise=0.05, rng=2))
     marks = tdakit.select_landmarks(cloud, 30, rng=1)

@@ -12,8 +12,7 @@ from scipy.spatial.distance import cdist
 import tdakit
 from tdakit import shapes
 from tdakit.errors import MemoryBudgetError
-
-from .test_landmarks import HOUSE, make_cloud
+from tests.core.geometry.test_landmarks import HOUSE, make_cloud
 
 
 def finite_deaths(diagrams, dim):
@@ -244,7 +243,7 @@ def test_preflight_refuses_a_huge_rips_complex():
 def test_preflight_estimate_is_close_to_the_built_complex():
     cloud = tdakit.load_cloud(np.random.default_rng(0).normal(size=(300, 3)))
     built = tdakit.compute_diagrams(cloud, max_dim=2, max_scale=0.8, collapse=False)
-    from tdakit.core.preflight import estimate_flag_complex
+    from tdakit.core.topology.preflight import estimate_flag_complex
 
     estimate = estimate_flag_complex(cdist(cloud.points, cloud.points), 0.8, 3)
     assert estimate.total == pytest.approx(built.params["n_simplices"], rel=0.05)
@@ -270,7 +269,7 @@ def test_preflight_refuses_a_dense_matrix_and_an_alpha_complex_over_budget():
 def test_compiled_lazy_witness_edges_match_the_numpy_blocks(metric, nu, monkeypatch, global_seed):
     # Both evaluate e(a, b) = max(0, min_w max(d(a, w), d(b, w)) - m_nu(w)) (de Silva & Carlsson 2004, sec. 5);
     # the numpy route (dense blocks of witnesses) is the reference for the compiled one.
-    from tdakit.core import _witness
+    from tdakit.core.topology import _witness
 
     rng = np.random.default_rng(global_seed)
     points = np.round(rng.uniform(0, 4, (500, 3)), 1)  # rounding: many equal distances

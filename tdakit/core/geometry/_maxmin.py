@@ -30,8 +30,8 @@ from functools import lru_cache
 import numpy as np
 from numpy.typing import NDArray
 
-from tdakit.core import _geometry
-from tdakit.core.cloud import Cloud
+from tdakit.core.geometry import _geometry
+from tdakit.core.geometry.cloud import Cloud
 
 _SLACK = 1.0 + 1e-12  # prune only with a margin over rounding
 STREAM_ABOVE_DIMS = 4
@@ -59,7 +59,7 @@ def distance_mode(cloud: Cloud) -> tuple[int, float, NDArray[np.float64]]:
 def _kernel():
     """The compiled routines (compiled or loaded from numba's cache once), or None without numba."""
     try:
-        from tdakit.core import _maxmin_kernels
+        from tdakit.core.geometry import _maxmin_kernels
     except ImportError:
         return None
     return _maxmin_kernels

@@ -7,11 +7,11 @@ import warnings
 import numpy as np
 
 from tdakit._validation import check_bool, check_choice, check_float, check_int, check_rng, fail
-from tdakit.core import _complexes, _persistence, _witness
-from tdakit.core.cloud import Cloud
-from tdakit.core.diagrams import Diagrams
-from tdakit.core.landmarks import Landmarks, landmarks_from_indices
-from tdakit.core.preflight import default_memory_budget
+from tdakit.core.geometry.cloud import Cloud
+from tdakit.core.geometry.landmarks import Landmarks, landmarks_from_indices
+from tdakit.core.topology import _complexes, _persistence, _witness
+from tdakit.core.topology.diagrams import Diagrams
+from tdakit.core.topology.preflight import default_memory_budget
 from tdakit.errors import FewWitnessesWarning, MemoryBudgetError, TdakitError
 
 __all__ = ["compute_diagrams", "FILTRATIONS", "WITNESS_KINDS", "stability_constant", "witness_edge_values"]

@@ -7,8 +7,8 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 from numpy.typing import NDArray
 
-from tdakit.core import _geometry
-from tdakit.core.cloud import Cloud
+from tdakit.core.geometry import _geometry
+from tdakit.core.geometry.cloud import Cloud
 
 _PAIR_BLOCK = 4_000_000  # candidate (witness, edge) entries held at once
 
@@ -58,10 +58,10 @@ def _compiled_edges(cloud, landmarks, nu, cap):
     if cloud.distance_matrix is not None:
         return None
     try:
-        from tdakit.core._witness_kernels import lazy_edges
+        from tdakit.core.topology._witness_kernels import lazy_edges
     except ImportError:
         return None
-    from tdakit.core._maxmin import distance_mode, worker_threads
+    from tdakit.core.geometry._maxmin import distance_mode, worker_threads
 
     mode, p, box = distance_mode(cloud)
     work = _geometry.working_points(cloud)

@@ -106,7 +106,7 @@ def test_wasserstein_agrees_with_pot_on_the_augmented_problem(order, global_seed
 
 def test_dense_route_agrees_with_the_sparse_route():
     # Far-from-diagonal diagrams take the dense network-simplex route; small ones the sparse matching.
-    from tdakit.core import distances
+    from tdakit.core.topology import distances
 
     rng = np.random.default_rng(5)
     a, b = random_diagram(rng, 60, 3.0), random_diagram(rng, 50, 3.0)
@@ -120,7 +120,7 @@ def test_mid_sized_tied_diagrams_take_the_terminating_solver(monkeypatch):
     # 1,500 + 1,500 points with all births 0 and rounded deaths (the kind of input that made scipy's sparse
     # matching cycle): the network simplex must answer, equal to scipy's dense assignment on the augmented
     # problem (each diagram joined by the other's diagonal projections: common practice).
-    from tdakit.core import distances
+    from tdakit.core.topology import distances
 
     rng = np.random.default_rng(0)
     a, b = (np.column_stack((np.zeros(1500), np.round(rng.exponential(0.1, 1500), 3))) for _ in range(2))
@@ -171,7 +171,7 @@ def test_wasserstein_on_tied_h0_diagrams_terminates_and_matches_pot():
     import sys
     from pathlib import Path
 
-    data = Path(__file__).resolve().parents[1] / "data" / "wasserstein_tied_h0.npz"
+    data = Path(__file__).resolve().parents[2] / "data" / "wasserstein_tied_h0.npz"
     code = (f"import numpy as np, tdakit; d = np.load(r'{data}'); "
             "print(tdakit.diagram_distance(d['small'], d['large'], kind='wasserstein'))")
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)

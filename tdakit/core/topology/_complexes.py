@@ -10,9 +10,10 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import NDArray
 
-from tdakit.core import _geometry, _witness
-from tdakit.core.cloud import Cloud
-from tdakit.core.preflight import (
+from tdakit.core.geometry import _geometry
+from tdakit.core.geometry.cloud import Cloud
+from tdakit.core.topology import _witness
+from tdakit.core.topology.preflight import (
     SizeEstimate,
     alpha_estimate,
     check_budget,

@@ -10,9 +10,9 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tdakit._validation import check_choice, check_float, check_int, fail
-from tdakit.core.diagrams import Diagrams
-from tdakit.core.distances import as_diagram, diagram_distance
-from tdakit.core.replicates import root_seed
+from tdakit.core.inference.replicates import root_seed
+from tdakit.core.topology.diagrams import Diagrams
+from tdakit.core.topology.distances import as_diagram, diagram_distance
 
 __all__ = ["PermutationResult", "permutation_test"]
 _FN = "permutation_test"

@@ -10,7 +10,7 @@ from functools import cached_property
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from tdakit.core.metrics import Metric
+from tdakit.core.geometry.metrics import Metric
 from tdakit.errors import DuplicatePointsWarning, InvalidDataError
 
 __all__ = ["Cloud", "make_cloud", "MAX_EXTENT", "MIN_EXTENT"]
@@ -186,7 +186,7 @@ def make_cloud(
 ) -> Cloud:
     """Validate coordinates (or a distance matrix) against ``metric`` and build a :class:`Cloud`."""
     if metric.name == "precomputed":
-        from tdakit.core._checks_matrix import check_distance_matrix
+        from tdakit.core.geometry._checks_matrix import check_distance_matrix
 
         matrix = check_distance_matrix(points, "points")
         n_dup = int(np.triu(matrix == 0.0, k=1).any(axis=0).sum())
@@ -199,7 +199,7 @@ def make_cloud(
     if standardize:
         array, shift, scale = _standardize(array, metric)
     check_extent(array, "points")
-    from tdakit.core._checks_metric import check_points_for_metric
+    from tdakit.core.geometry._checks_metric import check_points_for_metric
 
     metric = check_points_for_metric(array, metric)
     cloud = Cloud(array, metric, cols, source, None, count_duplicates(array), shift, scale, source_checksum,

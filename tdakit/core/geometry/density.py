@@ -7,8 +7,8 @@ from numpy.typing import NDArray
 from scipy.special import gammaln
 
 from tdakit._validation import check_float, check_int
-from tdakit.core import _geometry
-from tdakit.core.cloud import Cloud
+from tdakit.core.geometry import _geometry
+from tdakit.core.geometry.cloud import Cloud
 
 __all__ = ["knn_radius", "knn_density", "densest_points"]
 

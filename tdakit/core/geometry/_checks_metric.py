@@ -7,7 +7,7 @@ from dataclasses import replace
 import numpy as np
 from numpy.typing import NDArray
 
-from tdakit.core.metrics import Metric
+from tdakit.core.geometry.metrics import Metric
 from tdakit.errors import InvalidDataError
 
 

@@ -12,7 +12,7 @@ from functools import lru_cache
 import numpy as np
 from numpy.typing import NDArray
 
-from tdakit.core.cloud import Cloud
+from tdakit.core.geometry.cloud import Cloud
 
 # Blocked brute force beyond this many working dimensions: KD-trees lose to it there
 # (common practice; scikit-learn switches similarly).
@@ -98,6 +98,32 @@ def knn_distances(
             block[np.arange(block_queries.size), block_queries] = np.inf
         out[start:start + step] = np.sort(np.partition(block, k - 1, axis=1)[:, :k], axis=1)
     return out
+
+
+def knn_table(
+    cloud: Cloud, k: int, rows: NDArray[np.intp]
+) -> tuple[NDArray[np.float64], NDArray[np.intp]]:
+    """The k nearest points of each point in ``rows`` (itself included, first): metric distances and indices.
+
+    Sorted by distance, ties by index. Memory: two (len(rows), k) arrays, plus one block of
+    distances at a time for metrics without a tree.
+    """
+    queries = np.asarray(rows, dtype=np.intp)
+    if cloud.distance_matrix is None and _use_tree(cloud):
+        dist, idx = _tree(cloud, None).query(working_points(cloud)[queries], k=k, p=cloud.metric.p, workers=-1)
+        dist, idx = np.asarray(dist).reshape(queries.size, k), np.asarray(idx, dtype=np.intp).reshape(queries.size, k)
+        return to_metric(cloud, dist), idx
+    dist, idx = np.empty((queries.size, k)), np.empty((queries.size, k), dtype=np.intp)
+    everyone = np.arange(cloud.n_points)
+    step = block_rows(cloud.n_points, queries.size)
+    for start in range(0, queries.size, step):
+        block = pairwise(cloud, queries[start:start + step], everyone)
+        near = np.argpartition(block, k - 1, axis=1)[:, :k] if k < cloud.n_points else np.tile(everyone, (len(block), 1))
+        values = np.take_along_axis(block, near, axis=1)
+        order = np.lexsort((near, values), axis=1)
+        idx[start:start + step] = np.take_along_axis(near, order, axis=1)
+        dist[start:start + step] = np.take_along_axis(values, order, axis=1)
+    return dist, idx
 
 
 def _use_tree(cloud: Cloud) -> bool:

@@ -155,7 +155,7 @@ def test_compiled_maxmin_breaks_ties_like_the_plain_loop(metric, monkeypatch):
     kwargs = {"box": [12.0, 9.0]} if metric == "periodic" else {}
     cloud = tdakit.load_cloud(grid, metric=metric, **kwargs)
     fast = tdakit.select_landmarks(cloud, 40, start=17)
-    from tdakit.core import _maxmin
+    from tdakit.core.geometry import _maxmin
 
     monkeypatch.setattr(_maxmin, "_kernel", lambda: None)  # the numpy fallback streams every point
     plain = tdakit.select_landmarks(cloud, 40, start=17)
@@ -177,7 +177,7 @@ def test_core_maxmin_may_start_outside_the_core():
 def test_box_and_streaming_kernels_agree_with_the_plain_loop(metric, dims, monkeypatch, global_seed):
     # Integer coordinates make many exact ties; the plain loop (de Silva & Carlsson 2004, ties to the lowest
     # index) is the reference for both compiled routines.
-    from tdakit.core import _maxmin
+    from tdakit.core.geometry import _maxmin
 
     points = np.random.default_rng(global_seed).integers(0, 4, (300, dims)).astype(float)
     kwargs = {"box": 4.0} if metric == "periodic" else {}
@@ -198,7 +198,7 @@ def test_box_and_streaming_kernels_agree_with_the_plain_loop(metric, dims, monke
 
 def _plain_maxmin(cloud, count, start, monkeypatch):
     """The numpy loop of de Silva & Carlsson (2004): every candidate streamed once per landmark."""
-    from tdakit.core import _maxmin
+    from tdakit.core.geometry import _maxmin
 
     with monkeypatch.context() as patch:
         patch.setattr(_maxmin, "_kernel", lambda: None)
@@ -230,7 +230,7 @@ def _awkward_cloud(kind, rng):
 @pytest.mark.parametrize("kind", ["orders_of_magnitude", "repeats", "line", "four_coordinates"])
 def test_box_route_matches_the_plain_loop_on_awkward_clouds(kind, metric, monkeypatch, global_seed):
     # Two points per box and two boxes per group: every pruning test fires many times.
-    from tdakit.core import _maxmin
+    from tdakit.core.geometry import _maxmin
 
     monkeypatch.setattr(_maxmin, "_LEAF_SIZE", 2)
     monkeypatch.setattr(_maxmin, "_GROUP", 2)
@@ -243,7 +243,7 @@ def test_box_route_matches_the_plain_loop_on_awkward_clouds(kind, metric, monkey
 
 def test_box_route_sees_across_the_periodic_boundary(monkeypatch, global_seed):
     # Points hugging both faces of the box are neighbours through the boundary (minimum image).
-    from tdakit.core import _maxmin
+    from tdakit.core.geometry import _maxmin
 
     monkeypatch.setattr(_maxmin, "_LEAF_SIZE", 3)
     rng = np.random.default_rng(global_seed)
@@ -257,7 +257,7 @@ def test_box_route_sees_across_the_periodic_boundary(monkeypatch, global_seed):
 def test_fixed_point_screen_keeps_the_float64_choices(kind, monkeypatch, global_seed):
     # The screen may only pass points on to exact distances, never decide: distances that 16-bit steps cannot
     # tell apart (points 1e-7 apart beside points 1e3 away) must still be ordered as float64 orders them.
-    from tdakit.core import _maxmin
+    from tdakit.core.geometry import _maxmin
 
     rng = np.random.default_rng(global_seed)
     points = rng.normal(size=(400, 8))
@@ -298,7 +298,7 @@ def test_every_route_matches_the_plain_loop_on_random_clouds(dims, n, seed, expo
 def test_thread_count_follows_the_environment(monkeypatch):
     # Dask's workers set OMP_NUM_THREADS=1 (common practice for process-parallel jobs): the compiled passes
     # must then stay on one thread; small passes never split.
-    from tdakit.core._maxmin import worker_threads
+    from tdakit.core.geometry._maxmin import worker_threads
 
     assert worker_threads(1000) == 1
     monkeypatch.setenv("OMP_NUM_THREADS", "1")
@@ -310,7 +310,7 @@ def test_thread_count_follows_the_environment(monkeypatch):
 def test_threads_do_not_change_the_landmarks(monkeypatch):
     # The streaming pass splits its blocks over threads and combines by exact maxima (lowest position on
     # ties): one thread and several must choose the same landmarks.
-    from tdakit.core import _maxmin
+    from tdakit.core.geometry import _maxmin
 
     points = np.round(np.random.default_rng(3).normal(size=(6000, 6)), 1)
     with warnings.catch_warnings():

@@ -1,9 +1,9 @@
-"""Compiled lazy witness edges (numba), imported on first use by ``tdakit.core._witness``."""
+"""Compiled lazy witness edges (numba), imported on first use by ``tdakit.core.topology._witness``."""
 
 import numpy as np
 from numba import njit
 
-from tdakit.core._maxmin_kernels import dist
+from tdakit.core.geometry._maxmin_kernels import dist
 
 
 @njit(cache=True, nogil=True)

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from tdakit.core.cloud import Cloud
+from tdakit.core.geometry.cloud import Cloud
 
 __all__ = ["DensityGrid", "make_density_grid", "smooth_counts", "grid_diagrams", "scott_bandwidth"]
 

@@ -6,7 +6,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from tdakit._validation import check_int, fail
-from tdakit.core.distances import as_diagram
+from tdakit.core.topology.distances import as_diagram
 
 __all__ = ["persistence_landscape"]
 

@@ -8,10 +8,10 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tdakit._validation import check_choice, check_float, check_int, check_rng, fail
-from tdakit.core import _geometry
-from tdakit.core._maxmin import compiled_maxmin
-from tdakit.core.cloud import Cloud
-from tdakit.core.density import densest_points, knn_radius
+from tdakit.core.geometry import _geometry
+from tdakit.core.geometry._maxmin import compiled_maxmin
+from tdakit.core.geometry.cloud import Cloud
+from tdakit.core.geometry.density import densest_points, knn_radius
 from tdakit.errors import InvalidDataError, InvalidParameterError
 
 __all__ = ["Landmarks", "select_landmarks", "LANDMARK_METHODS", "landmarks_from_indices"]

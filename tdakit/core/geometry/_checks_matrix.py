@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from tdakit.core.cloud import MAX_EXTENT, _check_finite, _to_numeric_array
+from tdakit.core.geometry.cloud import MAX_EXTENT, _check_finite, _to_numeric_array
 from tdakit.errors import InvalidDataError
 
 

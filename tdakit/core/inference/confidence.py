@@ -7,15 +7,15 @@ import warnings
 import numpy as np
 
 from tdakit._validation import check_bool, check_choice, check_float, check_int, fail
-from tdakit.core import _geometry, kde
-from tdakit.core.bands import Band
-from tdakit.core.cloud import Cloud
-from tdakit.core.diagrams import Diagrams
-from tdakit.core.distances import diagram_distance
-from tdakit.core.filtrations import FILTRATIONS, compute_diagrams, stability_constant
-from tdakit.core.landmarks import LANDMARK_METHODS, Landmarks, select_landmarks
-from tdakit.core.landscapes import persistence_landscape
-from tdakit.core.replicates import config_fingerprint, root_seed, run_replicates
+from tdakit.core.geometry import _geometry, kde
+from tdakit.core.geometry.cloud import Cloud
+from tdakit.core.geometry.landmarks import LANDMARK_METHODS, Landmarks, select_landmarks
+from tdakit.core.inference.bands import Band
+from tdakit.core.inference.replicates import config_fingerprint, root_seed, run_replicates
+from tdakit.core.topology.diagrams import Diagrams
+from tdakit.core.topology.distances import diagram_distance
+from tdakit.core.topology.filtrations import FILTRATIONS, compute_diagrams, stability_constant
+from tdakit.core.topology.landscapes import persistence_landscape
 from tdakit.errors import TdakitWarning
 
 __all__ = ["confidence_band", "band_at_level", "hausdorff_level", "subsample_band", "BAND_METHODS"]

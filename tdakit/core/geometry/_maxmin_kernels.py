@@ -1,4 +1,4 @@
-"""The compiled maxmin routines (numba), imported on first use by ``tdakit.core._maxmin``.
+"""The compiled maxmin routines (numba), imported on first use by ``tdakit.core.geometry._maxmin``.
 
 They live at module level so that numba's on-disk cache serves every process: a routine
 defined inside a function, calling other such routines, misses the cache and would be
@@ -8,7 +8,7 @@ compiled again (seconds) in every new worker process.
 import numpy as np
 from numba import njit
 
-from tdakit.core._maxmin import _CHEBYSHEV, _CHUNK, _EUCLIDEAN, _MANHATTAN, _MINKOWSKI, _PERIODIC
+from tdakit.core.geometry._maxmin import _CHEBYSHEV, _CHUNK, _EUCLIDEAN, _MANHATTAN, _MINKOWSKI, _PERIODIC
 
 
 @njit(cache=True, inline="always")
