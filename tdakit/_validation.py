@@ -97,3 +97,13 @@ def check_rng(value: object, function: str) -> np.random.Generator:
     if not ok:
         raise fail("rng", function, "None, a non-negative int, a SeedSequence or a numpy Generator", value)
     return np.random.default_rng(value)
+
+
+def check_dtm_power(value, function: str) -> float:
+    """The DTM filtration's power p: 1 or inf (the two with closed-form edge values)."""
+    if isinstance(value, str):
+        value = {"1": 1.0, "inf": np.inf}.get(value.strip().lower(), value)
+    number = isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool)
+    if number and value in (1, np.inf):
+        return float(value)
+    raise fail("dtm_power", function, "1 or inf (the power p of the DTM-weighted Rips filtration)", value)

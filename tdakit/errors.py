@@ -11,6 +11,7 @@ from __future__ import annotations
 __all__ = [
     "TdakitError",
     "InvalidParameterError",
+    "BlindBandWarning",
     "InvalidDataError",
     "DataFileNotFoundError",
     "MemoryBudgetError",
@@ -62,3 +63,7 @@ class DuplicatePointsWarning(TdakitWarning):
 
 class FewWitnessesWarning(TdakitWarning):
     """A witness complex has fewer than ten witnesses per landmark."""
+
+
+class BlindBandWarning(TdakitWarning):
+    """A band's noise strip is taller than any bar the diagrams can hold: it cannot see anything there."""

@@ -26,7 +26,7 @@ from tdakit.core.inference.confidence import check_subsample_allowed, confidence
 from tdakit.core.inference.replicates import config_fingerprint, root_seed, run_replicates
 from tdakit.core.topology.diagrams import Diagrams
 from tdakit.core.topology.distances import diagram_distance
-from tdakit.core.topology.filtrations import compute_diagrams, stability_constant
+from tdakit.core.topology.filtrations import compute_diagrams, landmark_constant
 from tdakit.errors import TdakitWarning
 
 __all__ = ["StudyResult", "Recommendation", "subsampling_study"]
@@ -181,6 +181,14 @@ def _check_options(options, cloud) -> StudyOptions:
         options = StudyOptions.from_dict(options)
     elif not isinstance(options, StudyOptions):
         raise fail("options", _FN, "None, a StudyOptions or a dict of its fields", options)
+    if options.band.method == "auto":  # landmarks are what the study compares, so the density band cannot serve
+        method = "dtm" if options.complex.filtration == "dtm" else "subsample"
+        options = dataclasses.replace(options, band=dataclasses.replace(options.band, method=method))
+    if options.band.method == "density":
+        raise fail("options", _FN, "a band other than 'density' (it uses every point and no landmarks, so it cannot "
+                   "tell subsampling choices apart)", options.band.method)
+    if options.band.method == "dtm" and options.complex.filtration != "dtm":
+        raise fail("options", _FN, "complex filtration 'dtm' with the 'dtm' band", options.complex.filtration)
     if options.counts[-1] > cloud.n_distinct:
         raise fail("options", _FN, f"landmark counts of at most the {cloud.n_distinct} distinct points",
                    list(options.counts))
@@ -238,7 +246,7 @@ def _comparable(diagrams: Diagrams, k: int) -> np.ndarray:
 
 
 def _certificate(options, eps, reference) -> float:
-    constant = stability_constant(options.complex.filtration)
+    constant = landmark_constant(options.complex.filtration, options.complex.dtm_power)
     if constant is None or options.complex.sparse is not None:
         return np.nan
     return constant * (eps + reference["coverage_radius"])
@@ -253,9 +261,7 @@ def _cell_band(cloud, marks, diagrams, options, level, rng):
                               account_for_landmarks=band.account_for_landmarks)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", TdakitWarning)
-        return confidence_band(cloud, landmarks=marks, filtration=options.complex.filtration,
-                               max_dim=options.complex.max_dim, diagram_options=options.complex.diagram_options(),
-                               rng=rng, **band.to_dict())
+        return confidence_band(cloud, diagrams, landmarks=marks, rng=rng, **band.to_dict())
 
 
 def _cell_task(payload, rng, index) -> np.ndarray:
@@ -271,7 +277,8 @@ def _cell_task(payload, rng, index) -> np.ndarray:
     ref = reference["diagrams"]
     bottleneck = [diagram_distance(_comparable(diagrams, k), _comparable(ref, k)) for k in dims]
     wasserstein = [diagram_distance(_comparable(diagrams, k), _comparable(ref, k), kind="wasserstein") for k in dims]
-    significant = [np.nan if band is None else float(band.significant(band.diagrams, k).sum()) for k in dims]
+    significant = [np.nan if band is None or not band.calls else float(band.significant(band.diagrams, k).sum())
+                   for k in dims]
     return np.array([marks.n_landmarks, marks.coverage_radius, _certificate(options, marks.coverage_radius, reference),
                      seconds, memory.peak_bytes / 2**20, *bottleneck, *wasserstein, *significant], dtype=float)
 

@@ -12,7 +12,10 @@ def run(*args, cwd):
 def test_demo_end_to_end(tmp_path):
     result = run("demo", "--out", str(tmp_path / "out"), "--n-boot", "10", "--no-figures", cwd=tmp_path)
     assert result.returncode == 0, result.stderr
-    assert "Longest-lived loops" in result.stdout and "resampling heuristic" in result.stdout
+    # The demo runs tdakit's defaults: in three plain coordinates the kernel-density band, a confidence set that
+    # finds the planted ring and the three loops of the periodic box (4 H1, measured) and the six node clusters.
+    assert "Longest-lived loops" in result.stdout and "density band" in result.stdout
+    assert "H1: strip height" in result.stdout and "significant 4" in result.stdout
     table = (tmp_path / "out" / "features.csv").read_text().splitlines()
     assert table[0].startswith("dimension,birth,death,persistence,status,significant,margin") and len(table) > 10
 

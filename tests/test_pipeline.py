@@ -10,7 +10,8 @@ from tdakit.pipeline import analyze, rerun
 from tdakit.shapes import circle
 from tests.helpers import assert_same
 
-FAST = {"sampling": {"n_landmarks": 40}, "band": {"method": "subsample", "n_boot": 30}}
+FAST = {"sampling": {"n_landmarks": 40}, "complex": {"filtration": "rips"},
+        "band": {"method": "subsample", "n_boot": 30}}
 
 
 @pytest.fixture(scope="module")
@@ -28,7 +29,7 @@ def test_run_holds_every_piece_and_its_provenance(circle_file):
     assert run.landmarks.n_landmarks == 40 and run.coverage_radius == run.landmarks.coverage_radius
     np.testing.assert_array_equal(run.landmark_points, cloud.points[run.landmarks.indices])
     assert run.band.method == "subsample" and run.diagrams is run.band.diagrams
-    assert {"landmarks", "band"} <= set(steps) and set(run.timings) == {"landmarks", "diagrams + band"}
+    assert {"landmarks", "diagrams", "band"} <= set(steps) and set(run.timings) == {"landmarks", "diagrams", "band"}
     assert run.peak_memory["bytes"] > 0 and run.peak_memory["scope"] in ("this step", "process lifetime")
     info = run.provenance
     assert info["seed"] == run.seed == 7 and info["options"] == AnalysisOptions.from_dict(FAST).to_dict()
@@ -98,3 +99,24 @@ def test_analyze_rejects_bad_input(circle_file, kwargs, name):
 def test_analyze_needs_a_cloud():
     with pytest.raises(InvalidParameterError, match="'cloud'"):
         analyze(np.zeros((5, 2)))
+
+
+def test_auto_band_is_density_in_plain_low_dimensions_and_dtm_otherwise(circle_file):
+    # The defaults follow the planted-truth evaluation (benchmarks/README.md); the run records what it computed.
+    cloud = tdakit.load_cloud(circle_file)
+    low = analyze(cloud, {"band": {"n_boot": 20}}, rng=1)
+    assert low.band.method == "density" and low.options.band.method == "density"
+    assert low.landmarks is None and low.options.sampling.n_landmarks is None and low.diagrams.filtration == "density"
+    chosen = analyze(cloud, {"sampling": {"n_landmarks": 30}, "band": {"n_boot": 20}}, rng=1)
+    assert chosen.band.method == "dtm" and chosen.diagrams.filtration == "dtm" and chosen.band is not None
+    assert chosen.diagrams is chosen.band.diagrams and chosen.band.params["landmark_term"] > 0
+
+
+@pytest.mark.parametrize("options", [
+    {"complex": {"filtration": "rips"}, "band": {"method": "density"}},
+    {"sampling": {"n_landmarks": 30}, "band": {"method": "density"}},
+    {"complex": {"filtration": "rips"}, "band": {"method": "dtm"}}])
+def test_contradictory_options_are_refused(circle_file, options):
+    with pytest.raises(InvalidParameterError, match="options"):
+        analyze(tdakit.load_cloud(circle_file), options, rng=1)
+

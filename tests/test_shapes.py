@@ -34,7 +34,7 @@ def test_tidewater_loop_is_recovered_despite_glitches():
     assert readings.shape == (2000, 12) and 0.01 < is_glitch.mean() < 0.06
     cloud = tdakit.load_cloud(readings)
     marks = tdakit.select_landmarks(cloud, 80, method="core_maxmin", keep_fraction=0.9, rng=7)
-    diagrams = tdakit.compute_diagrams(cloud, landmarks=marks, filtration="dtm", dtm_neighbors=20)
+    diagrams = tdakit.compute_diagrams(cloud, landmarks=marks, filtration="dtm", dtm_neighbors=20, dtm_power=1)
     persistence = np.sort(diagrams.persistence(1))[::-1]
     assert persistence[0] > 3 * persistence[1]  # one planted loop stands far above the rest
 

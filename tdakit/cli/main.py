@@ -67,14 +67,13 @@ def _parser() -> argparse.ArgumentParser:
     summary.add_argument("--rows", type=int, default=10, help="feature rows to print (default 10)")
     demo = commands.add_parser(
         "demo", help="analyse the bundled mock halo catalogue (Marrowfield simulation box)",
-        description="Load the bundled mock catalogue, pick landmarks in its dense core, build a DTM-Rips "
-                    "filtration in the periodic box, draw a bootstrap noise band and print the longest-lived loops "
-                    "with their locations and whether they stand above the band; writes the run file, the feature "
-                    "table and the figures.")
+        description="Load the bundled mock catalogue and run tdakit's defaults on it (the calibrated band: in "
+                    "three plain coordinates the kernel-density band), print the longest-lived loops with whether "
+                    "they stand above the band; writes the run file, the feature table and the figures.")
     demo.add_argument("--landmarks", type=int, default=200, help="number of landmarks (default 200)")
     demo.add_argument("--out", type=Path, default=Path("tdakit-demo"), help="output folder (default ./tdakit-demo)")
     demo.add_argument("--seed", type=int, default=2026, help="random seed (default 2026)")
-    demo.add_argument("--n-boot", type=int, default=40, help="bootstrap replicates behind the noise band (default 40)")
+    demo.add_argument("--n-boot", type=int, default=100, help="replicates behind the noise band (default 100)")
     demo.add_argument("--no-figures", action="store_true", help="skip the figures")
     demo.add_argument("--quiet", action="store_true", help="no progress bars")
     return parser

@@ -27,11 +27,13 @@ def add_analysis_arguments(parser: argparse.ArgumentParser) -> None:
     group.add_argument("--config", type=Path, help="TOML file with [sampling], [complex] and [band] sections")
     group.add_argument("--landmarks", help="number of landmarks, or 'all' to use every point (default 200)")
     group.add_argument("--sampling", help="how landmarks are picked: maxmin (default), random, density, core_maxmin")
-    group.add_argument("--complex", help="filtration: rips (default), witness, alpha, dtm")
+    group.add_argument("--complex", help="filtration: dtm (default: DTM-weighted Rips), rips, witness, alpha")
     group.add_argument("--max-dim", type=int, help="highest homology dimension (default 1: components and loops)")
     group.add_argument("--max-scale", type=float, help="stop the filtration at this scale (default: no cap)")
-    group.add_argument("--band", help="noise band: subsample (default, a proven confidence set), bootstrap, "
-                                      "density, landscape, or none")
+    group.add_argument("--band", help="noise band: auto (default: density for 1-3 coordinates with default "
+                                      "sampling and complex, else dtm; both proven confidence sets, calibrated on "
+                                      "planted truth), dtm, density, subsample (proven, conservative), bootstrap "
+                                      "(heuristic), landscape (draws a band, calls nothing), or none")
     group.add_argument("--level", type=float, help="confidence level of the band (default 0.95)")
     group.add_argument("--replicates", type=int, help="resampling replicates behind the band (default 200)")
 

@@ -94,7 +94,7 @@ def _record(run) -> dict:
         "method": band.method, "level": band.level, "radii": list(band.radii), "target": band.target,
         "validity": band.validity, "statement": band.statement, "landmark_handling": band.landmark_handling,
         "replicates": band.replicates, "seed": band.seed, "params": band.params, "curves": band.curves,
-        "same_diagrams": band.diagrams is run.diagrams,
+        "calls": band.calls, "no_call_reason": band.no_call_reason, "same_diagrams": band.diagrams is run.diagrams,
         "diagrams": None if band.diagrams is run.diagrams else _diagrams_record(band.diagrams)}
     return record
 
@@ -235,7 +235,8 @@ def _build(data):
         band_diagrams = diagrams if band["same_diagrams"] else _diagrams(band["diagrams"])
         band = Band(band["method"], float(band["level"]), tuple(float(r) for r in band["radii"]), band_diagrams,
                     band["target"], band["validity"], band["statement"], band["landmark_handling"],
-                    band["replicates"], int(band["seed"]), band["params"], band["curves"])
+                    band["replicates"], int(band["seed"]), band["params"], band["curves"],
+                    bool(band.get("calls", True)), str(band.get("no_call_reason", "")))
     return RunResult(AnalysisOptions.from_dict(data["options"]), int(data["seed"]), marks, data["landmark_points"],
                      data["preview_indices"], data["preview_points"], diagrams, band, data["timings"],
                      data["peak_memory"], data["provenance"])

@@ -33,6 +33,8 @@ def _dims(diagrams, dims, function) -> list[int]:
 def _significant(diagrams, band, k):
     if band is None:
         return np.ones(len(diagrams[k]), dtype=bool)
+    if not band.calls:  # a band without a verdict on single bars: every point drawn hollow
+        return np.zeros(len(diagrams[k]), dtype=bool)
     return band.significant(diagrams, k)
 
 
@@ -126,7 +128,7 @@ def _decorate(ax, diagrams, band, dims, low, top, title):
     ax.legend(handles=handles, loc="lower right", frameon=False, handletextpad=0.3, borderaxespad=0.2)
     heading = title or f"{diagrams.filtration} diagram"
     if band is not None:
-        heading += f", {band.method} band ({band.level:g})"
+        heading += f", {band.method} band ({band.level:g})" + ("" if band.calls else ", no verdict")
     ax.set_title(heading)
 
 

@@ -18,10 +18,11 @@ from tdakit.widgets.jobs import run_analysis
 
 SAMPLING_CHOICES = [("maxmin (spread out)", "maxmin"), ("uniform random", "random"),
                     ("density-weighted", "density"), ("maxmin on the dense core", "core_maxmin")]
-COMPLEX_CHOICES = [("Vietoris-Rips", "rips"), ("witness (lazy)", "witness"), ("alpha", "alpha"),
-                   ("DTM-Rips", "dtm")]
-BAND_CHOICES = [("subsampling: proven, conservative", "subsample"), ("bootstrap: heuristic", "bootstrap"),
+COMPLEX_CHOICES = [("DTM-weighted Rips", "dtm"), ("Vietoris-Rips", "rips"), ("witness (lazy)", "witness"),
+                   ("alpha", "alpha")]
+BAND_CHOICES = [("auto: calibrated choice", "auto"), ("distance to measure: proven", "dtm"),
                 ("kernel density: proven, 1-3 coordinates", "density"),
+                ("subsampling: proven, conservative", "subsample"), ("bootstrap: heuristic", "bootstrap"),
                 ("landscape: band on the mean curve", "landscape"), ("no band", "none")]
 
 
@@ -169,7 +170,7 @@ class Explorer:
         if run.band is None:
             return f"{marks}, {run.diagrams.filtration}, no band"
         counts = ", ".join(f"H{k}: {int(run.band.significant(run.diagrams, k).sum())}"
-                           for k in range(len(run.diagrams)))
+                           for k in range(len(run.diagrams))) if run.band.calls else "no verdict"
         band = f"{run.band.method} band at {run.band.level:g}"
         return f"{marks}, {run.diagrams.filtration}, {band}; significant {counts}"
 

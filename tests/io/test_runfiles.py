@@ -23,7 +23,7 @@ def data_file(tmp_path_factory):
 
 @pytest.fixture(scope="module", params=["subsample", "landscape", "none"])
 def run(request, data_file):
-    options = {"sampling": {"n_landmarks": 30}, "complex": {"max_scale": 1.5},
+    options = {"sampling": {"n_landmarks": 30}, "complex": {"max_scale": 1.5, "filtration": "rips"},
                "band": {"method": request.param, "n_boot": 20, "n_subsamples": 4, "subsample_size": 60}}
     return analyze(tdakit.load_cloud(data_file), options, rng=2)
 

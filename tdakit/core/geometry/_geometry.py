@@ -118,7 +118,8 @@ def knn_table(
     step = block_rows(cloud.n_points, queries.size)
     for start in range(0, queries.size, step):
         block = pairwise(cloud, queries[start:start + step], everyone)
-        near = np.argpartition(block, k - 1, axis=1)[:, :k] if k < cloud.n_points else np.tile(everyone, (len(block), 1))
+        near = (np.argpartition(block, k - 1, axis=1)[:, :k] if k < cloud.n_points
+                else np.tile(everyone, (len(block), 1)))
         values = np.take_along_axis(block, near, axis=1)
         order = np.lexsort((near, values), axis=1)
         idx[start:start + step] = np.take_along_axis(near, order, axis=1)

@@ -17,7 +17,8 @@ def significance_table(diagrams: Diagrams, band=None):
     ----------
     diagrams : Diagrams
     band : Band, optional
-        Without a band the ``significant`` and ``margin`` columns are left empty (NA).
+        Without a band the ``significant`` and ``margin`` columns are left empty (NA); a band
+        that does not call features (``band.calls`` False) leaves ``significant`` empty.
 
     Returns
     -------
@@ -43,9 +44,9 @@ def _rows(diagrams, band, k):
                       np.where(diagrams.alive_at_cutoff(k), "alive at cutoff", "finite"))
     frame = pd.DataFrame({"dimension": k, "birth": pairs[:, 0], "death": pairs[:, 1],
                           "persistence": pairs[:, 1] - pairs[:, 0], "status": status})
-    if band is None:
+    if band is None or not band.calls:
         frame["significant"] = pd.array([pd.NA] * len(pairs), dtype="boolean")
-        frame["margin"] = np.nan
+        frame["margin"] = np.nan if band is None else band.margin(diagrams, k)
     else:
         frame["significant"] = band.significant(diagrams, k)
         frame["margin"] = band.margin(diagrams, k)

@@ -104,11 +104,23 @@ def dtm_weights(cloud: Cloud, landmarks, k: int) -> NDArray[np.float64]:
     return np.sqrt(np.mean(near**2, axis=1))
 
 
-def dtm_tree(cloud: Cloud, landmarks, max_dim, cap, *, k, collapse, budget):
-    weights = dtm_weights(cloud, landmarks, k)
-    matrix = _landmark_matrix(cloud, landmarks, budget) + weights[:, None] + weights[None, :]
-    matrix = np.maximum(matrix, 2 * np.maximum(weights[:, None], weights[None, :]))
+def weighted_rips_matrix(distances: NDArray[np.float64], weights: NDArray[np.float64],
+                         power: float) -> NDArray[np.float64]:
+    """Edge values of the DTM-weighted Rips filtration on gudhi's doubled scale (diagonal: vertex values).
+
+    power 1: max(d + w_a + w_b, 2 w_a, 2 w_b) (gudhi's DTM-Rips); power inf: max(d, 2 w_a, 2 w_b).
+    Either way every value moves by at most 2 max|w - w'| when the weights change to w'.
+    """
+    larger = 2 * np.maximum(weights[:, None], weights[None, :])
+    matrix = distances + weights[:, None] + weights[None, :] if power == 1 else distances.copy()
+    matrix = np.maximum(matrix, larger)
     np.fill_diagonal(matrix, 2 * weights)
+    return matrix
+
+
+def dtm_tree(cloud: Cloud, landmarks, max_dim, cap, *, k, power, collapse, budget):
+    weights = dtm_weights(cloud, landmarks, k)
+    matrix = weighted_rips_matrix(_landmark_matrix(cloud, landmarks, budget), weights, power)
     return flag_tree(matrix, cap, max_dim, collapse=collapse, budget=budget, what="DTM-Rips complex"), False
 
 

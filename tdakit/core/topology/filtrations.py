@@ -6,7 +6,7 @@ import warnings
 
 import numpy as np
 
-from tdakit._validation import check_bool, check_choice, check_float, check_int, check_rng, fail
+from tdakit._validation import check_bool, check_choice, check_dtm_power, check_float, check_int, check_rng, fail
 from tdakit.core.geometry.cloud import Cloud
 from tdakit.core.geometry.landmarks import Landmarks, landmarks_from_indices
 from tdakit.core.topology import _complexes, _persistence, _witness
@@ -14,7 +14,8 @@ from tdakit.core.topology.diagrams import Diagrams
 from tdakit.core.topology.preflight import default_memory_budget
 from tdakit.errors import FewWitnessesWarning, MemoryBudgetError, TdakitError
 
-__all__ = ["compute_diagrams", "FILTRATIONS", "WITNESS_KINDS", "stability_constant", "witness_edge_values"]
+__all__ = ["compute_diagrams", "FILTRATIONS", "WITNESS_KINDS", "landmark_constant", "stability_constant",
+           "witness_edge_values", "default_dtm_neighbors"]
 
 FILTRATIONS = ("alpha", "dtm", "rips", "witness")
 WITNESS_KINDS = ("lazy", "strong", "weak")
@@ -35,6 +36,25 @@ def stability_constant(filtration: str) -> float | None:
     return {"rips": 2.0, "alpha": 1.0}.get(filtration)
 
 
+def default_dtm_neighbors(n_points: int, n_landmarks: int) -> int:
+    """ceil(n / n_landmarks), at least 10 and at most n: about one landmark's share of the cloud."""
+    return int(min(n_points, max(10, -(-n_points // max(n_landmarks, 1)))))
+
+
+def landmark_constant(filtration: str, dtm_power: float | None = None) -> float | None:
+    """Lam with d_B(Dgm on landmarks, Dgm on every point) <= lam * eps, eps the coverage radius.
+
+    Rips 2 (Chazal, de Silva, Oudot 2014), alpha 1; DTM-weighted Rips on the doubled scale with
+    1-Lipschitz weights: 2 for p = inf and 4 for p = 1 (sending each point to its nearest
+    landmark moves every edge value by at most 2 eps + 2 eps for p = 1 and by 2 eps for p = inf,
+    and the point-landmark simplices stay within that shift, so the two filtrations are
+    interleaved; see :func:`compute_diagrams`). None where no bound is known (witness).
+    """
+    if filtration == "dtm":
+        return 2.0 if dtm_power == np.inf else 4.0
+    return stability_constant(filtration)
+
+
 def compute_diagrams(
     cloud: Cloud,
     *,
@@ -47,7 +67,8 @@ def compute_diagrams(
     sparse: float | None = None,
     witness: str = "lazy",
     witness_nu: int = 1,
-    dtm_neighbors: int = 10,
+    dtm_neighbors: int | None = None,
+    dtm_power: float = np.inf,
     memory_budget: float | None = None,
     rng: int | np.random.Generator | None = None,
 ) -> Diagrams:
@@ -66,9 +87,9 @@ def compute_diagrams(
         ``"witness"``: witness complex of kind ``witness``.
         ``"alpha"``: alpha complex, Euclidean clouds of at most 5 dimensions;
         reported as radii sqrt(alpha^2).
-        ``"dtm"``: DTM-Rips (distance to measure over the whole cloud with
-        ``dtm_neighbors`` points, the point itself counted, q = 2), on gudhi's
-        doubled scale so values sit with Rips lengths.
+        ``"dtm"``: DTM-weighted Rips (distance to measure over the whole cloud with
+        ``dtm_neighbors`` points, the point itself counted, q = 2, power ``dtm_power``),
+        on gudhi's doubled scale so values sit with Rips lengths.
     max_dim : int, default=1
         Highest homology dimension; simplices up to ``max_dim + 1`` are built.
     max_scale : float, optional
@@ -92,8 +113,17 @@ def compute_diagrams(
         sqrt(alpha^2) in length units.
     witness_nu : {0, 1, 2}, default=1
         nu of the lazy witness complex.
-    dtm_neighbors : int, default=10
-        Points in each distance-to-measure average (``"dtm"``).
+    dtm_neighbors : int, optional
+        Points k in each distance-to-measure average (``"dtm"``), the point itself
+        counted; the mass is m = k / n. Default: the cloud's points per landmark,
+        ceil(n / n_landmarks), at least 10, so the weights smooth over about one
+        landmark's share of the cloud.
+    dtm_power : {1, inf}, default=inf
+        The p of the DTM-weighted Rips filtration [4]_, doubled as gudhi does: p = 1 gives
+        edges max(d + w_a + w_b, 2 w_a, 2 w_b) (gudhi's DTM-Rips); p = inf gives
+        max(d, 2 w_a, 2 w_b), Rips whose vertices wait for their weight, so holes smaller
+        than the local weight never open. The landmark certificate is 4 eps for p = 1 and
+        2 eps for p = inf (``params["landmark_bound"]``).
     memory_budget : float, optional
         Bytes the complex may use at its persistence peak; default half the memory
         available now. Larger complexes are refused before they are built.
@@ -123,7 +153,7 @@ def compute_diagrams(
        in the plane", IEEE Trans. Inform. Theory 29 (1983) 551-559.
     """
     opts = _check_options(cloud, landmarks, filtration, max_dim, max_scale, coefficient_field, collapse,
-                          sparse, witness, witness_nu, dtm_neighbors, memory_budget)
+                          sparse, witness, witness_nu, dtm_neighbors, dtm_power, memory_budget)
     marks, cap = opts["landmarks"], opts["cap"]
     tree, squared = _build(cloud, marks, opts, rng)
     per_dim = _persistence.tree_pairs(tree, opts["max_dim"], opts["field"])
@@ -135,7 +165,7 @@ def compute_diagrams(
 
 
 def _check_options(cloud, landmarks, filtration, max_dim, max_scale, field, collapse, sparse, witness, nu,
-                   dtm_neighbors, budget):
+                   dtm_neighbors, dtm_power, budget):
     if not isinstance(cloud, Cloud):
         raise fail("cloud", _FN, "a Cloud from tdakit.load_cloud", cloud)
     opts = {"filtration": check_choice(filtration, "filtration", _FN, FILTRATIONS),
@@ -144,8 +174,9 @@ def _check_options(cloud, landmarks, filtration, max_dim, max_scale, field, coll
             "collapse": check_bool(collapse, "collapse", _FN),
             "witness": check_choice(witness, "witness", _FN, WITNESS_KINDS),
             "nu": check_int(nu, "witness_nu", _FN, low=0, high=2),
-            "dtm_neighbors": check_int(dtm_neighbors, "dtm_neighbors", _FN, low=1,
-                                       high=cloud.n_points if filtration == "dtm" else None),
+            "dtm_neighbors": None if dtm_neighbors is None else check_int(
+                dtm_neighbors, "dtm_neighbors", _FN, low=1, high=cloud.n_points if filtration == "dtm" else None),
+            "dtm_power": check_dtm_power(dtm_power, _FN),
             "budget": default_memory_budget() if budget is None else
             check_float(budget, "memory_budget", _FN, low=0.0, low_open=True, allow_inf=True)}
     if opts["field"] not in _PRIMES:
@@ -158,6 +189,8 @@ def _check_options(cloud, landmarks, filtration, max_dim, max_scale, field, coll
         sparse = check_float(sparse, "sparse", _FN, low=0.0, high=1.0, low_open=True, high_open=True)
     opts["sparse"] = sparse
     opts["landmarks"] = _as_landmarks(cloud, landmarks, opts["filtration"])
+    if opts["dtm_neighbors"] is None:
+        opts["dtm_neighbors"] = default_dtm_neighbors(cloud.n_points, opts["landmarks"].n_landmarks)
     _check_geometry(cloud, opts)
     return opts
 
@@ -202,7 +235,8 @@ def _build(cloud, marks, opts, rng):
     if kind == "rips":
         return _complexes.rips_tree(cloud, idx, dim, cap, collapse=opts["collapse"], budget=budget)
     if kind == "dtm":
-        return _complexes.dtm_tree(cloud, idx, dim, cap, k=opts["dtm_neighbors"], collapse=opts["collapse"],
+        return _complexes.dtm_tree(cloud, idx, dim, cap, k=opts["dtm_neighbors"], power=opts["dtm_power"],
+                                   collapse=opts["collapse"],
                                    budget=budget)
     if kind == "alpha":
         return _complexes.alpha_tree(cloud, idx, dim, cap, budget=budget)
@@ -253,7 +287,7 @@ def _location(opts) -> str:
 
 
 def _provenance(cloud, marks, opts, tree) -> dict:
-    constant = stability_constant(opts["filtration"]) if opts["sparse"] is None else None
+    constant = landmark_constant(opts["filtration"], opts["dtm_power"]) if opts["sparse"] is None else None
     bound = constant * marks.coverage_radius if constant is not None and cloud.metric.is_metric else None
     params = {key: opts[key] for key in ("max_dim", "collapse", "sparse", "budget")}
     params.update(
@@ -263,7 +297,8 @@ def _provenance(cloud, marks, opts, tree) -> dict:
     if opts["filtration"] == "witness":
         params.update(witness=opts["witness"], witness_nu=opts["nu"] if opts["witness"] == "lazy" else None)
     if opts["filtration"] == "dtm":
-        params["dtm_neighbors"] = opts["dtm_neighbors"]
+        params.update(dtm_neighbors=opts["dtm_neighbors"], dtm_power=opts["dtm_power"],
+                      dtm_mass=opts["dtm_neighbors"] / cloud.n_points)
     if opts["sparse"] is not None:
         params.update(sparse_seed=opts.get("sparse_seed"), sparse_log_bound=-float(np.log1p(-opts["sparse"])))
     return params

@@ -9,6 +9,7 @@ from scipy.stats import binom
 import tdakit
 from tdakit import shapes
 from tdakit.core.geometry import kde
+from tdakit.errors import InvalidParameterError
 
 SQRT3 = np.sqrt(3.0)
 # Continuous unit circle: Rips H1 = (0, sqrt 3) (Adamaszek & Adams, Pacific J. Math. 290 (2017)).
@@ -152,8 +153,12 @@ def test_landscape_band_is_not_a_feature_test_on_noise(gaussian_blob):
     # it flags noise (measured: 67 H1 bars). The result says so in words.
     cloud, marks = gaussian_blob
     band = tdakit.confidence_band(cloud, landmarks=marks, method="landscape", n_boot=200, rng=3)
-    assert band.significant(band.diagrams, 1).sum() > 10
-    assert "flags noise bars" in band.validity
+    margins = band.margin(band.diagrams, 1)
+    assert (margins > 0).sum() > 10  # as a threshold it would call many noise bars real, so it calls none
+    assert not band.calls and "flagged noise" in band.no_call_reason
+    with pytest.raises(InvalidParameterError, match="does not mark single features"):
+        band.significant(band.diagrams, 1)
+    assert band.table()["significant"].isna().all()
 
 
 # -- invariants ---------------------------------------------------------------------------------

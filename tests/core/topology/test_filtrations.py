@@ -57,7 +57,7 @@ def test_dtm_rips_check_values():
     # gudhi documentation (DTMRipsComplex example): points [[2,2],[0,1],[3,4]], k=2 ->
     # H0 (sqrt10, inf) and (sqrt10, 5.39834563766817) twice.
     diagrams = tdakit.compute_diagrams(tdakit.load_cloud([[2, 2], [0, 1], [3, 4]]), filtration="dtm", dtm_neighbors=2,
-                                       max_dim=0)
+                                       dtm_power=1, max_dim=0)
     np.testing.assert_allclose(diagrams[0], [[np.sqrt(10), np.inf], [np.sqrt(10), 5.39834563766817],
                                              [np.sqrt(10), 5.39834563766817]], atol=1e-9)
 
@@ -66,10 +66,10 @@ def test_dtm_with_one_neighbour_is_rips_and_matches_gudhi(global_seed):
     # gudhi doc: k = 1 is the usual Rips complex. Cross-check k = 5 against gudhi's DTMRipsComplex.
     points = np.random.default_rng(global_seed).normal(size=(40, 2))
     cloud = tdakit.load_cloud(points)
-    rips, dtm1 = (tdakit.compute_diagrams(cloud, filtration=f, dtm_neighbors=1) for f in ("rips", "dtm"))
+    rips, dtm1 = (tdakit.compute_diagrams(cloud, filtration=f, dtm_neighbors=1, dtm_power=1) for f in ("rips", "dtm"))
     for k in (0, 1):
         np.testing.assert_allclose(rips[k], dtm1[k])
-    ours = tdakit.compute_diagrams(cloud, filtration="dtm", dtm_neighbors=5)
+    ours = tdakit.compute_diagrams(cloud, filtration="dtm", dtm_neighbors=5, dtm_power=1)
     tree = DTMRipsComplex(points=points, k=5).create_simplex_tree(max_dimension=2)
     tree.compute_persistence(homology_coeff_field=2)
     for k in (0, 1):
