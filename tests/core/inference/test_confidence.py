@@ -125,7 +125,8 @@ def test_bootstrap_finds_exactly_one_loop(noisy_circle):
     cloud, marks = noisy_circle
     band = tdakit.confidence_band(cloud, landmarks=marks, method="bootstrap", n_boot=40, rng=3)
     assert band.significant(band.diagrams, 1).sum() == 1
-    assert band.strip_height(1) < 0.3
+    # measured: spread ~0.11 plus twice the landmark bound 2 eps (eps ~0.07) in the strip, far below the loop
+    assert band.strip_height(1) < 0.6 and band.params["landmark_term"] > 0
 
 
 def test_subsample_band_misses_the_loop_at_the_default_size_and_finds_it_with_larger_subsamples(noisy_circle):
