@@ -37,6 +37,8 @@ from tdakit.core import (
     persistence_landscape,
     select_landmarks,
     significance_table,
+    universal_pvalue_support,
+    universal_pvalues,
     witness_edge_values,
 )
 from tdakit.io import load_cloud, load_run, save_run
@@ -76,5 +78,7 @@ __all__ = [
     "load_cloud",
     "select_landmarks",
     "significance_table",
+    "universal_pvalue_support",
+    "universal_pvalues",
     "witness_edge_values",
 ]

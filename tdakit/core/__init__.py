@@ -29,6 +29,8 @@ from tdakit.core.inference import (
     confidence_band,
     permutation_test,
     significance_table,
+    universal_pvalue_support,
+    universal_pvalues,
 )
 from tdakit.core.topology import (
     Diagrams,
@@ -43,5 +45,5 @@ __all__ = [
     "Band", "Cloud", "Diagrams", "Landmarks", "METRICS", "Metric", "PermutationResult", "band_at_level",
     "compute_diagrams", "confidence_band", "densest_points", "diagram_distance", "knn_density", "knn_radius",
     "landmarks_from_indices", "permutation_test", "persistence_landscape", "select_landmarks", "significance_table",
-    "stability_constant", "witness_edge_values",
+    "stability_constant", "universal_pvalue_support", "universal_pvalues", "witness_edge_values",
 ]
