@@ -27,9 +27,14 @@ def summary_figure(run, *, preset: str = "double"):
     plot_betti_curves(run.diagrams, run.band, ax=figure.add_subplot(grid[1, 1]))
     source = run.provenance.get("input", {})
     statement = run.band.statement if run.band is not None else "No confidence band."
+    bound = run.diagrams.params.get("landmark_bound")
+    bound_text = f", landmark bound {bound:.3g}" if bound else ""
+    blind = run.band.blind_dimensions() if run.band is not None else []
+    warning = (f" Strip taller than the data in H{', H'.join(map(str, blind))}: nothing can be seen there."
+               if blind else "")
     text = (f"{source.get('n_points', '?')} points, {source.get('n_dims', '?')} dims; "
             f"{run.landmarks.n_landmarks if run.landmarks is not None else 'all'} landmarks "
-            f"(coverage radius {run.coverage_radius:.3g}); seed {run.seed}. {statement}")
+            f"(coverage radius {run.coverage_radius:.3g}{bound_text}); seed {run.seed}. {statement}{warning}")
     with house_style():
         figure.suptitle("\n".join(textwrap.wrap(text, 150)), fontsize=7)
     return figure
