@@ -26,7 +26,7 @@ from tdakit.core.inference.confidence import check_subsample_allowed, confidence
 from tdakit.core.inference.replicates import config_fingerprint, root_seed, run_replicates
 from tdakit.core.topology.diagrams import Diagrams
 from tdakit.core.topology.distances import diagram_distance
-from tdakit.core.topology.filtrations import compute_diagrams, landmark_constant
+from tdakit.core.topology.filtrations import compute_diagrams, default_dtm_neighbors, landmark_constant
 from tdakit.errors import TdakitWarning
 
 __all__ = ["StudyResult", "Recommendation", "subsampling_study"]
@@ -184,6 +184,10 @@ def _check_options(options, cloud) -> StudyOptions:
     if options.band.method == "auto":  # landmarks are what the study compares, so the density band cannot serve
         method = "dtm" if options.complex.filtration == "dtm" else "subsample"
         options = dataclasses.replace(options, band=dataclasses.replace(options.band, method=method))
+    if options.complex.filtration == "dtm" and options.complex.dtm_neighbors is None:
+        # one weight function for every cell, or their diagrams (and the certificate) would not compare
+        k = default_dtm_neighbors(cloud.n_points, max(options.counts))
+        options = dataclasses.replace(options, complex=dataclasses.replace(options.complex, dtm_neighbors=k))
     if options.band.method == "density":
         raise fail("options", _FN, "a band other than 'density' (it uses every point and no landmarks, so it cannot "
                    "tell subsampling choices apart)", options.band.method)

@@ -32,9 +32,11 @@ def summary_figure(run, *, preset: str = "double"):
     blind = run.band.blind_dimensions() if run.band is not None else []
     warning = (f" Strip taller than the data in H{', H'.join(map(str, blind))}: nothing can be seen there."
                if blind else "")
-    text = (f"{source.get('n_points', '?')} points, {source.get('n_dims', '?')} dims; "
-            f"{run.landmarks.n_landmarks if run.landmarks is not None else 'all'} landmarks "
-            f"(coverage radius {run.coverage_radius:.3g}{bound_text}); seed {run.seed}. {statement}{warning}")
+    vertices = (f"{run.landmarks.n_landmarks} landmarks (coverage radius {run.coverage_radius:.3g}{bound_text})"
+                if run.landmarks is not None else
+                "every point (kernel density on a grid)" if run.diagrams.filtration == "density" else "every point")
+    text = (f"{source.get('n_points', '?')} points, {source.get('n_dims', '?')} dims; {vertices}; seed {run.seed}. "
+            f"{statement}{warning}")
     with house_style():
         figure.suptitle("\n".join(textwrap.wrap(text, 150)), fontsize=7)
     return figure
