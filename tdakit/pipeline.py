@@ -30,7 +30,7 @@ from tdakit.core.topology.diagrams import Diagrams
 from tdakit.core.topology.filtrations import compute_diagrams
 from tdakit.errors import InvalidDataError
 
-__all__ = ["RunResult", "analyze", "rerun", "PREVIEW_POINTS"]
+__all__ = ["RunResult", "analyze", "auto_band", "rerun", "PREVIEW_POINTS"]
 
 PREVIEW_POINTS = 20_000
 _FN = "analyze"
@@ -159,8 +159,9 @@ def analyze(
         From :func:`tdakit.load_cloud`.
     options : AnalysisOptions or dict, optional
         Sampling, complex and band options (default: 200 maxmin landmarks, the DTM-weighted
-        Rips filtration up to H1 and the DTM band at 0.95, the test that was calibrated and
-        most powerful on tdakit's planted-truth evaluation; see ``benchmarks/README.md``).
+        Rips filtration up to H1 and the band ``"auto"`` at 0.95: the test that was calibrated
+        and most powerful on tdakit's planted-truth evaluation for the data at hand, see
+        :func:`auto_band` and ``benchmarks/README.md``).
         Contradictory options (the DTM band on another filtration; the density band, which
         builds its own diagrams from every point, with landmark or complex options) are
         refused.
@@ -231,18 +232,21 @@ def _diagrams_and_band(cloud, marks, options, seeds, timings, report, run) -> tu
 
 
 def auto_band(cloud: Cloud, options: AnalysisOptions) -> str:
-    """The band ``method="auto"`` stands for: density in 1-3 plain coordinates with default landmarks and complex.
+    """The band ``method="auto"`` stands for, from tdakit's planted-truth evaluation (``benchmarks/README.md``).
 
-    Measured on tdakit's planted-truth evaluation (``benchmarks/README.md``): both bands keep false features
-    within 5 % on every null; the kernel-density band has more power where it applies (it needs no landmarks,
-    so the landmark spacing costs it nothing), the DTM band works in any number of coordinates and metric.
+    Density in 1-3 plain coordinates with default landmarks and complex (it needs no landmarks, so the landmark
+    spacing costs it nothing); otherwise the DTM band on the DTM complex (any number of coordinates, any
+    metric), the subsampling band on Rips or alpha diagrams (valid; the only band with a proof for them), and
+    the bootstrap for witness diagrams (which then calls nothing and says why: no landmark bound is known).
     """
     from tdakit.config import ComplexOptions, SamplingOptions
 
     plain = cloud.metric.name in ("euclidean", "periodic") and 1 <= cloud.n_dims <= 3
     defaults = (options.complex == ComplexOptions(max_dim=options.complex.max_dim)
                 and options.sampling == SamplingOptions())
-    return "density" if plain and defaults else "dtm"
+    if plain and defaults:
+        return "density"
+    return {"dtm": "dtm", "rips": "subsample", "alpha": "subsample"}.get(options.complex.filtration, "bootstrap")
 
 
 def _check_combination(cloud: Cloud, options: AnalysisOptions) -> AnalysisOptions:

@@ -110,6 +110,9 @@ def test_auto_band_is_density_in_plain_low_dimensions_and_dtm_otherwise(circle_f
     chosen = analyze(cloud, {"sampling": {"n_landmarks": 30}, "band": {"n_boot": 20}}, rng=1)
     assert chosen.band.method == "dtm" and chosen.diagrams.filtration == "dtm" and chosen.band is not None
     assert chosen.diagrams is chosen.band.diagrams and chosen.band.params["landmark_term"] > 0
+    rips = analyze(cloud, {"sampling": {"n_landmarks": 30}, "complex": {"filtration": "rips"}, "band": {"n_boot": 20}},
+                   rng=1)
+    assert rips.band.method == "subsample" and rips.band.calls
 
 
 @pytest.mark.parametrize("options", [
