@@ -152,6 +152,7 @@ class Config:
         return planted_cloud(self.scenario, self.n_points, rng=_seeds(seed)[0], **dict(self.scenario_params))
 
     def to_dict(self) -> dict:
+        """The fields as a plain dict (``scenario_params`` as a dict)."""
         data = dataclasses.asdict(self)
         data["scenario_params"] = dict(self.scenario_params)
         return data
@@ -169,6 +170,14 @@ def _check_config(config, function: str) -> Config:
     if isinstance(config, dict):
         return Config(**config)
     raise fail("config", function, "a Config or a dict of its fields", config)
+
+
+def _check_results(results, function: str, name: str = "results") -> list[dict]:
+    ok = isinstance(results, (list, tuple)) and all(isinstance(r, dict) and ("error" in r or "status" in r)
+                                                    for r in results)
+    if not ok:
+        raise fail(name, function, "a list of dicts (run records, or results of evaluate / run_grid)", results)
+    return list(results)
 
 
 def _check_seeds(seeds, function: str) -> list[int]:
@@ -195,23 +204,24 @@ def run_one(config: Config, seed: int) -> dict:
     Returns
     -------
     dict
-        ``seed``, ``seconds`` (the analysis alone), ``error`` (empty or the message), ``verdict`` (False when
-        the band does not call features), ``scored`` (the dimensions scored) and per scored dimension k
-        ``significant_hk``, ``truth_hk``, ``false_hk``, ``missed_hk``; ``any_false`` and ``exact``.
+        ``seed``, ``seconds`` and ``cpu_seconds`` (the analysis alone), ``error`` (empty or the message),
+        ``verdict`` (False when the band does not call features), ``scored`` (the dimensions scored) and per
+        scored dimension k ``truth_hk``, ``significant_hk``, ``false_hk``, ``missed_hk``; ``any_false`` and
+        ``exact``.
     """
     config = _check_config(config, "run_one")
     seed = check_int(seed, "seed", "run_one", low=0)
-    record = {"seed": seed, "seconds": math.nan, "error": "", "verdict": False, "scored": ()}
+    record = {"seed": seed, "seconds": math.nan, "cpu_seconds": math.nan, "error": "", "verdict": False, "scored": ()}
     try:
         planted = config.draw(seed)
         options = config.analysis_options()
         cloud = planted.to_cloud()
-        start = time.perf_counter()
+        start, cpu = time.perf_counter(), time.process_time()
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             run = tdakit.analyze(cloud, options, rng=_seeds(seed)[1], n_jobs=1)
             table = run.table
-        record["seconds"] = time.perf_counter() - start
+        record["seconds"], record["cpu_seconds"] = time.perf_counter() - start, time.process_time() - cpu
         record.update(_score(planted, run, table, config.max_dim))
     except Exception as error:  # counted per configuration, never fatal
         record["error"] = f"{type(error).__name__}: {error}"
@@ -277,9 +287,11 @@ def summarize(config: Config, records: Sequence[dict]) -> dict:
         The configuration's fields, ``runs`` (runs with a verdict), ``no_verdict``, ``errors``,
         ``error_messages`` (distinct, at most 3), ``status`` (``"ok"``, ``"no verdict"``, ``"error"``),
         ``fwer`` with ``fwer_low``/``fwer_high``, ``mean_false``, ``mean_false_hk``, ``fwer_hk``, ``power_hk``
-        (planted dimensions), ``exact``, ``median_seconds``, ``scored`` and ``truth``; rates are NaN without runs.
+        (planted dimensions), ``exact``, ``median_seconds`` (wall), ``median_cpu_seconds``, ``scored`` and ``truth``;
+        rates are NaN without runs.
     """
     config = _check_config(config, "summarize")
+    records = _check_results(records, "summarize", "records")
     done = [r for r in records if not r["error"]]
     judged = [r for r in done if r["verdict"]]
     errors = [r["error"] for r in records if r["error"]]
@@ -288,7 +300,8 @@ def summarize(config: Config, records: Sequence[dict]) -> dict:
                "error_messages": list(dict.fromkeys(errors))[:3],
                "no_verdict_reasons": list(dict.fromkeys(r.get("no_verdict_reason", "") for r in done
                                                         if not r["verdict"]))[:2],
-               "median_seconds": statistics.median(r["seconds"] for r in done) if done else math.nan}
+               "median_seconds": statistics.median(r["seconds"] for r in done) if done else math.nan,
+               "median_cpu_seconds": statistics.median(r["cpu_seconds"] for r in done) if done else math.nan}
     summary["status"] = "ok" if judged else "no verdict" if done else "error" if errors else "no runs"
     scored = done[0]["scored"] if done else ()
     summary["scored"] = tuple(scored)
@@ -429,19 +442,23 @@ def select(grid: Sequence[Config], *, methods=None, scenarios=None, counts=None)
 
 
 # -- running a grid -------------------------------------------------------------------------------------------
-# Seconds per analysis, measured for this grid with one process (3,000-point clouds, n_boot=100; the uniform
-# sphere costs the Rips-based bands 4-10x more); used to order the work (dearest first) and for --list.
-_SECONDS = {("dtm", 100): 0.05, ("dtm", 300): 0.55, ("dtm", 1000): 3.7, ("subsample", 100): 0.27,
-            ("subsample", 300): 0.75, ("subsample", 1000): 4.2, ("bootstrap", 100): 2.2, ("bootstrap", 300): 17.0,
-            ("density", None): 0.5, ("landscape", 100): 0.2}
+# CPU seconds per analysis measured for this grid with one process (2,000-4,000 points, n_boot=100): the mean over
+# the scenarios, and the uniform sphere apart: landmarks placed exactly on a sphere make Rips and DTM complexes much
+# dearer (edge collapse removes little there). Used to send the dearest work first and for the estimate of --list;
+# the measured sum over the default grid was 4,100 s for 100 seeds.
+_SECONDS = {("dtm", 100): 0.03, ("dtm", 300): 0.22, ("dtm", 1000): 3.6, ("subsample", 100): 0.21,
+            ("subsample", 300): 0.38, ("subsample", 1000): 4.1, ("bootstrap", 100): 1.6, ("bootstrap", 300): 15.2,
+            ("density", None): 0.55, ("landscape", 100): 0.27}
+_SPHERE_SECONDS = {("dtm", 300): 3.6, ("subsample", 300): 3.2, ("bootstrap", 100): 7.4}
 
 
 def expected_seconds(config: Config) -> float:
-    """Rough seconds of one analysis of ``config`` (for ordering work and estimating a grid's time)."""
-    base = _SECONDS.get((config.method, config.n_landmarks))
-    if base is None:
-        base = 2.0 * (config.n_landmarks or 100) / 100
-    return base * (config.n_points / 3000) + 0.05
+    """Rough CPU seconds of one analysis of ``config`` (for ordering work and estimating a grid's time)."""
+    config = _check_config(config, "expected_seconds")
+    key = (config.method, config.n_landmarks)
+    if config.scenario == "uniform_sphere" and key in _SPHERE_SECONDS:
+        return _SPHERE_SECONDS[key]
+    return _SECONDS.get(key, 2.0 * (config.n_landmarks or 100) / 100)
 
 
 def _unit(config: Config, seeds: list[int]) -> list[dict]:
@@ -500,8 +517,8 @@ def run_grid(configs: Sequence[Config], seeds, *, jobs: int = 1, log=None) -> li
                 try:
                     chunk_records = future.result()
                 except Exception as error:  # a worker that died (e.g. a crash in compiled code) fails its seeds only
-                    chunk_records = [{"seed": seed, "seconds": math.nan, "error": f"worker failed: {error!r}",
-                                      "verdict": False, "scored": ()} for seed in chunk]
+                    chunk_records = [{"seed": seed, "seconds": math.nan, "cpu_seconds": math.nan, "verdict": False,
+                                      "error": f"worker failed: {error!r}", "scored": ()} for seed in chunk]
                 collect(index, chunk_records, done)
     results = []
     for i, config in enumerate(configs):
@@ -523,6 +540,7 @@ def _per_dim(summary: dict, key: str) -> str:
 
 def markdown_table(results: Sequence[dict]) -> str:
     """The summaries as one markdown table (a row per configuration)."""
+    results = _check_results(results, "markdown_table")
     header = ("| scenario | band | complex | landmarks | truth | runs | family-wise false rate [95 % CI] | "
               "mean false | power | exact | median s | notes |")
     lines = [header, "|" + "---|" * 12]
@@ -550,6 +568,9 @@ def write_csv(results: Sequence[dict], path) -> tuple[str, str]:
     """Write one row per configuration to ``path`` and one row per run to ``<stem>_runs.csv``."""
     import pandas as pd
 
+    results = _check_results(results, "write_csv")
+    if not isinstance(path, (str, os.PathLike)):
+        raise fail("path", "write_csv", "a file path (str or os.PathLike)", path)
     path = os.fspath(path)
     rows = []
     for s in results:
@@ -582,6 +603,7 @@ def _parse(argv):
 
 
 def main(argv=None) -> int:
+    """The command line (see the module docstring); returns the exit status."""
     args = _parse(argv)
     seeds = args.seeds if args.seeds is not None else (10 if args.quick else 100)
     grid = select(quick_grid() if args.quick else default_grid(), methods=args.methods, scenarios=args.scenarios,

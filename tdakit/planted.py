@@ -85,7 +85,7 @@ class PlantedCloud:
     evaluate_dims : tuple of int, optional
         The dimensions whose truth an evaluation should score; default every dimension of
         ``betti``. A scenario narrows it where part of the truth depends on a convention
-        (``loop_with_outliers`` scores H1 only).
+        (``loop_with_outliers`` scores H1 only, ``marrowfield`` leaves out H0).
     params : dict
         The scenario's parameters, for records.
     """
