@@ -144,8 +144,20 @@ def confidence_band(
     -----
     Every band that calls features accounts for the landmarks: a bar shorter than twice the
     landmark bound (``diagrams.params["landmark_bound"]``) can be made by the landmark
-    choice alone, so it is never called real. False-feature rates and power on planted
-    truth are in ``benchmarks/README.md``.
+    choice alone, so it is never called real.
+
+    Measured calibration (``benchmarks/significance.py``, 100 seeds per setting, level 0.95,
+    maxmin landmarks, 2,000-4,000 points; full table in ``benchmarks/README.md``): on the nulls
+    (uniform cube, Gaussian blob, five Gaussian clumps, uniform sphere) no false feature in any
+    run for ``"dtm"``, ``"density"`` and ``"subsample"`` at 100 and 300 landmarks (family-wise
+    rate 0, 95 % interval [0, 0.04]); likewise on every signal scenario. Power: ``"dtm"`` finds
+    the noisy circle, two circles, the five clumps and (300 landmarks) the noisy sphere's void in
+    every run; ``"density"`` finds the circles (also at noise 0.2), the clumps and the demo
+    catalogue's four loops in every run, the two circles in 94 %; ``"subsample"`` found almost
+    nothing (it is valid but far too wide at its default size). Sup-norm coverage of the DTM
+    band inside the binomial bound at 0.90 and 0.95 (``tests/core/inference/test_dtm_band.py``).
+    Weak: the torus at 4,000 points (no band finds both loops; the DTM band does at 20,000
+    points and 1,200 landmarks), the circle at noise 0.2 for the DTM band.
 
     Replicates are independent of ``level``: the same ``rng`` and checkpoint serve any level.
 

@@ -37,14 +37,16 @@ def stability_constant(filtration: str) -> float | None:
 
 
 def default_dtm_neighbors(n_points: int, n_landmarks: int) -> int:
-    """ceil(3 n / n_landmarks), at least 10 and at most n: about three landmarks' share of the cloud.
+    """ceil(3 n / n_landmarks), at least 50 and at most n: about three landmarks' share of the cloud.
 
-    Measured (benchmarks/README.md): one share leaves the weights noisy where points are sparse (on the
-    12-coordinate loop with 3 % outliers the resampling spread c was 0.42 and the loop was missed); three
-    shares cut c to 0.17 and find it, while the circle, cube and torus keep their answers; six shares start
-    to shorten real loops (torus, 300 landmarks: 1.06 -> 0.80).
+    Measured (benchmarks/README.md): the resampling spread c of the weights falls like 1/sqrt(k), and
+    where maxmin puts landmarks on sparse outliers it decides the band. On the 12-coordinate loop with
+    3 % outliers (2,000 points, 30 seeds) power was 0.03 with k = 20 (300 landmarks), 0.43 with k = 30
+    (200 landmarks) and 1.0 with k = 50 or 100 at both counts, with no false feature; one landmark's
+    share (k = n / n_landmarks) had left c at 0.42 on 4,000 points. Six shares start to shorten real
+    loops (torus, 300 landmarks: 1.06 -> 0.80), so three shares, and at least 50 points.
     """
-    return int(min(n_points, max(10, -(-3 * n_points // max(n_landmarks, 1)))))
+    return int(min(n_points, max(50, -(-3 * n_points // max(n_landmarks, 1)))))
 
 
 def landmark_constant(filtration: str, dtm_power: float | None = None) -> float | None:
@@ -122,7 +124,7 @@ def compute_diagrams(
     dtm_neighbors : int, optional
         Points k in each distance-to-measure average (``"dtm"``), the point itself
         counted; the mass is m = k / n. Default: three times the cloud's points per
-        landmark, ceil(3 n / n_landmarks), at least 10, so the weights smooth over about
+        landmark, ceil(3 n / n_landmarks), at least 50, so the weights smooth over about
         three landmarks' share of the cloud (measured choice, see ``default_dtm_neighbors``).
     dtm_power : {1, inf}, default=inf
         The p of the DTM-weighted Rips filtration [4]_, doubled as gudhi does: p = 1 gives
