@@ -80,7 +80,8 @@ def main(argv=None) -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--quick", action="store_true", help="10^5 points instead of 10^6")
     parser.add_argument("--jobs", type=int, default=2, help="worker processes for the replicates (default 2)")
-    parser.add_argument("--coverage", type=int, default=0, help="also measure coverage over this many replications")
+    parser.add_argument("--coverage", type=int, default=0,
+                        help="measure coverage over this many replications instead of the timings")
     args = parser.parse_args(argv)
     if args.coverage:
         from scipy.stats import binomtest
@@ -89,6 +90,7 @@ def main(argv=None) -> None:
             low, high = binomtest(count, args.coverage).proportion_ci(0.95, method="wilson")
             print(f"coverage at nominal {level:.2f}: {count}/{args.coverage} = {count / args.coverage:.3f} "
                   f"(95 % interval {low:.3f}-{high:.3f})")
+        return
     n_points = 100_000 if args.quick else 1_000_000
     rows = [measure(n_points, dims, 1000, 200, args.jobs) for dims in (3, 20)]
     print("| cloud | landmarks | k | select s | diagrams (H0) s | DTM band, 200 replicates s | bottleneck bootstrap "
