@@ -69,6 +69,8 @@ def test_study_from_toml(tmp_path):
     (["analyze", "missing.csv"], "does not exist"),
     (["analyze", str(HALOS), "--band", "magic"], "'method' parameter of BandOptions"),
     (["analyze", str(HALOS), "--landmarks", "ten"], "'n_landmarks' parameter"),
+    (["analyze", str(HALOS), "--band", "density", "--complex", "rips"], "with the 'density' band"),
+    (["analyze", str(HALOS), "--band", "dtm", "--complex", "rips"], "with the 'dtm' band"),
     (["summary", str(HALOS)], "not a tdakit run file"),
     (["study", "nowhere.toml"], "No config file"),
 ])
