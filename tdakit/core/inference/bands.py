@@ -29,7 +29,7 @@ class Band:
     Attributes
     ----------
     method : str
-        ``"subsample"``, ``"density"``, ``"bootstrap"`` or ``"landscape"``.
+        ``"dtm"``, ``"density"``, ``"subsample"``, ``"bootstrap"`` or ``"landscape"``.
     level : float
         Nominal coverage.
     radii : tuple of float
