@@ -14,6 +14,7 @@ import os
 import queue
 import tempfile
 import threading
+import warnings
 from collections import deque
 from collections.abc import Callable, Sequence
 from pathlib import Path
@@ -21,7 +22,7 @@ from pathlib import Path
 import numpy as np
 
 from tdakit._validation import check_int, fail
-from tdakit.errors import InvalidDataError
+from tdakit.errors import InvalidDataError, TdakitWarning
 
 __all__ = ["run_replicates", "root_seed"]
 
@@ -84,6 +85,15 @@ def run_replicates(
         raise fail("n_jobs", function, "a positive int or -1 (all cores)", n_jobs)
     if executor is not None and not callable(getattr(executor, "submit", None)):
         raise fail("executor", function, "None or an object with a submit(fn, *args) method", executor)
+    if progress is not None and not callable(progress):
+        raise fail("progress", function, "None or a callable progress(done, total)", progress)
+    if checkpoint is not None:
+        _check_checkpoint_path(checkpoint, function)
+    cores = os.cpu_count() or 1
+    if n_jobs > cores:
+        warnings.warn(f"n_jobs={n_jobs} is more than the {cores} cores here; using {cores} (the numbers do not "
+                      "depend on it).", TdakitWarning, stacklevel=3)
+        n_jobs = cores
     children = np.random.SeedSequence(seed).spawn(n_replicates)
     done = _load_checkpoint(checkpoint, fingerprint, seed) if checkpoint is not None else {}
     todo = [(i, children[i]) for i in range(n_replicates) if i not in done]
@@ -168,15 +178,29 @@ def config_fingerprint(*parts) -> str:
     return hashlib.sha256(json.dumps(parts, sort_keys=True, default=str).encode()).hexdigest()
 
 
+def _check_checkpoint_path(path, function: str) -> None:
+    """Refuse, before any work, a checkpoint path that could never be written."""
+    if not isinstance(path, (str, os.PathLike)):
+        raise fail("checkpoint", function, "None or a file path", path)
+    path = Path(path)
+    if not path.parent.is_dir():
+        raise fail("checkpoint", function, f"a file in an existing folder (no folder {str(path.parent)!r})", str(path))
+    if path.exists() and not path.is_file():
+        raise fail("checkpoint", function, "a path to a file, not a folder or a device", str(path))
+
+
 def _load_checkpoint(path, fingerprint, seed) -> dict:
     path = Path(path)
     if not path.exists():
         return {}
     try:
-        with np.load(path, allow_pickle=False) as data:
+        data = np.load(path, allow_pickle=False)
+        if not hasattr(data, "files"):  # a plain .npy array, not a checkpoint
+            raise ValueError("it holds a single array, not a tdakit checkpoint")
+        with data:
             saved_print, saved_seed = str(data["fingerprint"]), int(data["seed"])
             indices, values = data["indices"], data["values"]
-    except (OSError, ValueError, KeyError) as exc:
+    except (OSError, ValueError, KeyError, TypeError, EOFError) as exc:
         raise InvalidDataError(f"The checkpoint file {str(path)!r} cannot be read ({exc}); delete it to start "
                                f"afresh.", parameter="checkpoint") from None
     if saved_print != fingerprint or saved_seed != seed:
