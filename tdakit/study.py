@@ -242,13 +242,6 @@ def _select(cloud, options, method, count, rng):
 
 
 # -- one cell --------------------------------------------------------------------------------------
-def _comparable(diagrams: Diagrams, k: int) -> np.ndarray:
-    """Pairs with alive-at-cutoff classes dying at the cap (so capped diagrams compare finitely)."""
-    pairs = diagrams[k].copy()
-    pairs[diagrams.alive_at_cutoff(k), 1] = diagrams.max_scale
-    return pairs
-
-
 def _certificate(options, eps, reference) -> float:
     constant = landmark_constant(options.complex.filtration, options.complex.dtm_power)
     if constant is None or options.complex.sparse is not None:
@@ -279,8 +272,8 @@ def _cell_task(payload, rng, index) -> np.ndarray:
     seconds = time.perf_counter() - start
     dims = range(options.complex.max_dim + 1)
     ref = reference["diagrams"]
-    bottleneck = [diagram_distance(_comparable(diagrams, k), _comparable(ref, k)) for k in dims]
-    wasserstein = [diagram_distance(_comparable(diagrams, k), _comparable(ref, k), kind="wasserstein") for k in dims]
+    bottleneck = [diagram_distance(diagrams.capped(k), ref.capped(k)) for k in dims]
+    wasserstein = [diagram_distance(diagrams.capped(k), ref.capped(k), kind="wasserstein") for k in dims]
     significant = [np.nan if band is None or not band.calls else float(band.significant(band.diagrams, k).sum())
                    for k in dims]
     return np.array([marks.n_landmarks, marks.coverage_radius, _certificate(options, marks.coverage_radius, reference),

@@ -159,7 +159,8 @@ def _bootstrap_task(payload, rng):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", TdakitWarning)
         diagrams = _replicate_diagrams(sample, spec, rng)
-    return np.array([diagram_distance(reference[k], diagrams[k]) for k in range(len(reference))])
+    # classes alive at a finite cap die at the cap in both, as in the study (else one extra makes the radius inf)
+    return np.array([diagram_distance(reference.capped(k), diagrams.capped(k)) for k in range(len(reference))])
 
 
 def bootstrap_method(cloud, opts, run, bandwidth, resolution) -> Band:

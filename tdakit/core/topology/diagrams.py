@@ -78,6 +78,12 @@ class Diagrams:
         """Mask of classes alive at the finite cap ``max_scale`` (not essential)."""
         return self.cutoff_flags[self._dim(dim)]
 
+    def capped(self, dim: int) -> NDArray[np.float64]:
+        """``D[dim]`` with classes alive at the cap dying at the cap, so capped diagrams compare finitely."""
+        pairs = self[dim].copy()
+        pairs[self.alive_at_cutoff(dim), 1] = self.max_scale
+        return pairs
+
     def essential(self, dim: int) -> NDArray[np.bool_]:
         """Mask of classes that never die in the complete filtration."""
         return np.isinf(self[dim][:, 1]) & ~self.alive_at_cutoff(dim)

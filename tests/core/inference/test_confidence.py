@@ -307,3 +307,13 @@ def test_band_at_level_equals_a_fresh_band_at_that_level(method, extra):
     moved = band_at_level(low, 0.95)
     assert moved.radii == pytest.approx(high.radii, rel=1e-12) and moved.level == 0.95
     assert moved.statement == high.statement
+
+
+def test_bootstrap_with_a_scale_cap_has_finite_radii():
+    # Classes alive at the cap die at the cap on both sides of each replicate's comparison; compared as essential
+    # classes, one extra of them made the radius inf.
+    cloud = tdakit.load_cloud(shapes.circle(400, noise=0.05, rng=2))
+    marks = tdakit.select_landmarks(cloud, 40, rng=2)
+    diagrams = tdakit.compute_diagrams(cloud, landmarks=marks, filtration="rips", max_scale=0.3)  # old radius: inf
+    band = tdakit.confidence_band(cloud, diagrams, landmarks=marks, method="bootstrap", n_boot=20, rng=1)
+    assert diagrams.alive_at_cutoff(1).any() and np.all(np.isfinite(band.radii))
