@@ -38,7 +38,9 @@ def summary_figure(run, *, preset: str = "double"):
     text = (f"{source.get('n_points', '?')} points, {source.get('n_dims', '?')} dims; {vertices}; seed {run.seed}. "
             f"{statement}{warning}")
     with house_style():
-        figure.suptitle("\n".join(textwrap.wrap(text, 150)), fontsize=7)
+        # about 16 characters of 7-point text per inch, so the wrapped title fits the preset's width
+        width = int(16 * figure.get_figwidth())
+        figure.suptitle("\n".join(textwrap.wrap(text, width)), fontsize=7)
     return figure
 
 
