@@ -133,8 +133,9 @@ def compute_diagrams(
         than the local weight never open. The landmark certificate is 4 eps for p = 1 and
         2 eps for p = inf (``params["landmark_bound"]``).
     memory_budget : float, optional
-        Bytes the complex may use at its persistence peak; default half the memory
-        available now. Larger complexes are refused before they are built.
+        Bytes the complex may use at its persistence peak; default a quarter of the
+        machine's (or the container's) memory, the same on every run. Larger complexes are
+        refused before they are built.
     rng : int, Generator or None
         Seed for the sparse Rips construction (the only random step).
 

@@ -284,3 +284,13 @@ def test_compiled_lazy_witness_edges_match_the_numpy_blocks(metric, nu, monkeypa
         plain = _witness.lazy_witness_edges(cloud, marks, nu, cap)
         monkeypatch.undo()
         np.testing.assert_allclose(compiled, plain, rtol=1e-12, atol=1e-12)
+
+
+def test_default_memory_budget_is_stable_and_a_quarter_of_the_machine():
+    # Same budget whatever else runs (it used to be half of the memory available at the moment).
+    import psutil
+
+    from tdakit.core.topology.preflight import default_memory_budget
+
+    budgets = {default_memory_budget() for _ in range(3)}
+    assert len(budgets) == 1 and budgets.pop() <= psutil.virtual_memory().total // 4
