@@ -17,7 +17,8 @@ from tdakit.core.topology.diagrams import Diagrams
 from tdakit.core.topology.distances import diagram_distance
 from tdakit.core.topology.filtrations import compute_diagrams, landmark_constant, stability_constant
 from tdakit.core.topology.landscapes import persistence_landscape
-from tdakit.errors import TdakitWarning
+from tdakit.core.topology.preflight import default_memory_budget
+from tdakit.errors import MemoryBudgetError, TdakitWarning
 
 _FN = "confidence_band"
 LANDSCAPE_NO_CALL = ("it bounds how precisely the mean landscape curve is known, not single bars; used as a threshold "
@@ -281,8 +282,12 @@ def density_method(cloud, opts, run, bandwidth, resolution) -> Band:
                    "use 'subsample', 'bootstrap' or 'landscape'", opts["method"])
     width = kde.scott_bandwidth(cloud.points) if bandwidth is None else \
         check_float(bandwidth, "bandwidth", _FN, low=0.0, low_open=True)
+    if not width > 0:
+        raise fail("bandwidth", _FN, "a positive kernel width (the points have no spread, so Scott's rule gives 0; "
+                   "pass bandwidth= in the data's units)", width)
     if resolution is not None:
         resolution = check_int(resolution, "resolution", _FN, low=8, high=4096)
+    _check_grid_memory(resolution or kde.DEFAULT_RESOLUTION[cloud.n_dims], cloud.n_dims)
     grid = kde.make_density_grid(cloud, width, resolution)
     density = kde.smooth_counts(grid, grid.counts, cloud.n_points)
     diagrams = _density_diagrams(density, grid, opts)
@@ -296,6 +301,22 @@ def density_method(cloud, opts, run, bandwidth, resolution) -> Band:
                 "none: the density is estimated from every point", stats, opts["seed"],
                 {"bandwidth": width, "grid_shape": grid.shape, "n_boot": opts["n_boot"]},
                 {"density": density, "grid_lower": grid.lower, "grid_cell": grid.cell})
+
+
+# Measured peak growth of binning, smoothing and cubical persistence up to H2:
+# 396-433 bytes per grid cell (64^3 and 128^3 grids).
+GRID_BYTES_PER_CELL = 450
+
+
+def _check_grid_memory(resolution: int, n_dims: int) -> None:
+    """Refuse a density grid whose persistence would not fit the memory budget, before allocating it."""
+    need, budget = GRID_BYTES_PER_CELL * float(resolution) ** n_dims, default_memory_budget()
+    if need > budget:
+        fits = int((budget / GRID_BYTES_PER_CELL) ** (1.0 / n_dims))
+        raise MemoryBudgetError(
+            f"Refused before building: a {n_dims}-D density grid of {resolution} cells per axis needs about "
+            f"{need / 2**30:.3g} GiB (budget {budget / 2**30:.3g} GiB). Use resolution={fits} or less.",
+            parameter="resolution")
 
 
 def _density_diagrams(density, grid, opts) -> Diagrams:

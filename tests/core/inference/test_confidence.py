@@ -317,3 +317,16 @@ def test_bootstrap_with_a_scale_cap_has_finite_radii():
     diagrams = tdakit.compute_diagrams(cloud, landmarks=marks, filtration="rips", max_scale=0.3)  # old radius: inf
     band = tdakit.confidence_band(cloud, diagrams, landmarks=marks, method="bootstrap", n_boot=20, rng=1)
     assert diagrams.alive_at_cutoff(1).any() and np.all(np.isfinite(band.radii))
+
+
+def test_density_band_refuses_what_cannot_work_before_allocating():
+    # A 3-D grid of 1,024 cells per axis needs ~450 GiB at the measured ~450 bytes per cell: refused at once, with
+    # the resolution that fits; a cloud without spread gives a zero bandwidth: refused, naming the parameter.
+    from tdakit.errors import MemoryBudgetError
+
+    cloud = tdakit.load_cloud(np.random.default_rng(0).uniform(size=(200, 3)))
+    with pytest.raises(MemoryBudgetError, match="resolution="):
+        tdakit.confidence_band(cloud, method="density", resolution=1024, n_boot=5)
+    flat = tdakit.load_cloud(np.ones((50, 2)))
+    with pytest.raises(InvalidParameterError, match="bandwidth"):
+        tdakit.confidence_band(flat, method="density", n_boot=5)
