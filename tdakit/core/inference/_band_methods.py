@@ -169,7 +169,7 @@ def bootstrap_method(cloud, opts, run, bandwidth, resolution) -> Band:
     spec = _spec(opts)
     stats = run_replicates(_bootstrap_task, (cloud, diagrams, spec), opts["n_boot"], opts["seed"], **run,
                            fingerprint=_fingerprint(cloud, opts))
-    term, calls, reason = _landmark_term(cloud, diagrams, "bootstrap")
+    term, calls, reason = _landmark_term(cloud, diagrams)
     radii = tuple(quantile(stats[:, k], opts["level"]) + term for k in range(stats.shape[1]))
     target = f"the {opts['filtration']} diagram of the sampling distribution (as resampling sees it)"
     validity = ("resampling heuristic, not a proven confidence set for this filtration (proofs cover "
@@ -183,7 +183,7 @@ def bootstrap_method(cloud, opts, run, bandwidth, resolution) -> Band:
                 calls=calls, no_call_reason=reason)
 
 
-def _landmark_term(cloud, diagrams, method) -> tuple[float, bool, str]:
+def _landmark_term(cloud, diagrams) -> tuple[float, bool, str]:
     """The landmark bound lam * eps added to a radius, and whether the band may then call features."""
     params = diagrams.params
     if params.get("landmark_method", "all points") == "all points":
@@ -202,7 +202,7 @@ def dtm_method(cloud, opts, run, bandwidth, resolution) -> Band:
     params = diagrams.params
     marks = opts["landmarks"]
     vertices = marks.indices if marks is not None else np.arange(cloud.n_points)
-    term, calls, reason = _landmark_term(cloud, diagrams, "dtm")
+    term, calls, reason = _landmark_term(cloud, diagrams)
     table = dtm.neighbour_table(cloud, vertices, int(params["dtm_neighbors"]))
     weights, _ = dtm.weighted_dtm(table)
     stats = run_replicates(dtm.dtm_sup_task, (table, weights), opts["n_boot"], opts["seed"], **run,

@@ -9,6 +9,8 @@ neighbours, listed once before the replicates start.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 from numpy.typing import NDArray
 
@@ -28,13 +30,14 @@ def spare_neighbours(k: int, n_points: int) -> int:
     return int(min(n_points, k + np.ceil(6.0 * np.sqrt(k)) + 10))
 
 
+@dataclass(frozen=True, eq=False)
 class NeighbourTable:
-    """Each landmark's nearest cloud points (itself first): squared distances and indices."""
+    """Each landmark's nearest cloud points (itself first): squared distances and indices, mass k of n."""
 
-    __slots__ = ("squared", "indices", "k", "n_points")
-
-    def __init__(self, squared: NDArray[np.float64], indices: NDArray[np.intp], k: int, n_points: int):
-        self.squared, self.indices, self.k, self.n_points = squared, indices, k, n_points
+    squared: NDArray[np.float64]
+    indices: NDArray[np.intp]
+    k: int
+    n_points: int
 
 
 def neighbour_table(cloud: Cloud, landmarks: NDArray[np.intp], k: int) -> NeighbourTable:
