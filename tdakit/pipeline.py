@@ -94,6 +94,11 @@ class RunResult:
         lookup = {int(v): i for i, v in enumerate(self.landmarks.indices)}
         return self.landmark_points[[lookup[int(v)] for v in indices]]
 
+    @property
+    def unit(self) -> str | None:
+        """The unit of the coordinates (and so of every scale in the run), None when unnamed."""
+        return self.provenance.get("input", {}).get("unit")
+
     def summary(self) -> str:
         source = self.provenance.get("input", {})
         lines = [f"Run on {source.get('n_points', '?')} points ({source.get('source', '?')}), seed {self.seed}."]
@@ -295,7 +300,7 @@ def provenance(cloud: Cloud, options: AnalysisOptions, seed: int) -> dict:
     source = {"source": cloud.source, "file_checksum": cloud.source_checksum, "fingerprint": cloud.fingerprint,
               "n_points": cloud.n_points, "n_dims": cloud.n_dims, "columns": list(cloud.columns),
               "metric": cloud.metric.to_dict(), "standardized": cloud.shift is not None,
-              "n_duplicates": cloud.n_duplicates, "read_options": dict(cloud.read_options)}
+              "n_duplicates": cloud.n_duplicates, "read_options": dict(cloud.read_options), "unit": cloud.unit}
     return {"versions": _versions(), "platform": platform.platform(), "input": source,
             "options": options.to_dict(), "seed": seed,
             "created": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds")}
@@ -346,7 +351,7 @@ def _reload(recorded: dict) -> Cloud:
     reading = recorded.get("read_options", {"columns": recorded["columns"] or None})
     cloud = load_cloud(path, metric=metric["name"], box=metric.get("box"),
                        p=metric.get("p") if metric["name"] == "minkowski" else None,
-                       standardize=recorded["standardized"], **reading)
+                       standardize=recorded["standardized"], unit=recorded.get("unit"), **reading)
     if cloud.source_checksum != recorded["file_checksum"]:
         raise InvalidDataError(f"The file {str(path)!r} changed since the run was made (checksum differs).",
                                parameter="cloud")

@@ -31,6 +31,7 @@ def load_cloud(
     delimiter: str | None = None,
     header: bool | None = None,
     key: str | None = None,
+    unit: str | None = None,
 ) -> Cloud:
     """Read a point cloud and the metric that measures it.
 
@@ -64,6 +65,9 @@ def load_cloud(
         when omitted (a first line with a non-numeric field is a header).
     key : str, optional
         ``.npz`` only: the array to read; default the only array, or ``"points"``.
+    unit : str, optional
+        The unit of the coordinates (``"Mpc/h"``, ``"pc"``, ``"deg"``, ...), used on every
+        axis and table of the run. Default: none named (``"deg"`` for the angular metric).
 
     Returns
     -------
@@ -112,8 +116,10 @@ def load_cloud(
         _no_file_options(delimiter, header, key)
         table, names, label = source, None, "array"
     table, names = _select_columns(table, names, columns)
+    if unit is None and metric_obj.name == "angular":
+        unit = "deg"
     return make_cloud(table, metric_obj, columns=names, source=label, standardize=standardize,
-                      source_checksum=checksum, read_options=read_options)
+                      source_checksum=checksum, read_options=read_options, unit=unit)
 
 
 def _no_file_options(delimiter, header, key):

@@ -11,7 +11,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from tdakit.core.geometry.metrics import Metric
-from tdakit.errors import DuplicatePointsWarning, InvalidDataError
+from tdakit.errors import DuplicatePointsWarning, InvalidDataError, InvalidParameterError
 
 __all__ = ["Cloud", "make_cloud", "MAX_EXTENT", "MIN_EXTENT"]
 
@@ -50,6 +50,9 @@ class Cloud:
     read_options : tuple of (name, value) pairs
         The file-reading options given to ``load_cloud`` (``key``, ``delimiter``, ``header``,
         ``columns``), so that a run can read the same file the same way again.
+    unit : str or None
+        The unit of the coordinates as the user or the file named it (``"Mpc/h"``, ``"pc"``,
+        ``"deg"``, ...); figures and tables label their scales with it. None when unnamed.
     """
 
     points: NDArray[np.float64]
@@ -62,6 +65,7 @@ class Cloud:
     scale: NDArray[np.float64] | None = field(default=None, repr=False)
     source_checksum: str | None = None
     read_options: tuple = ()
+    unit: str | None = None
 
     @property
     def n_points(self) -> int:
@@ -183,6 +187,7 @@ def make_cloud(
     standardize: bool = False,
     source_checksum: str | None = None,
     read_options: tuple = (),
+    unit: str | None = None,
 ) -> Cloud:
     """Validate coordinates (or a distance matrix) against ``metric`` and build a :class:`Cloud`."""
     if metric.name == "precomputed":
@@ -192,7 +197,7 @@ def make_cloud(
         n_dup = int(np.triu(matrix == 0.0, k=1).any(axis=0).sum())
         empty = np.zeros((matrix.shape[0], 0))
         return _finish(Cloud(empty, metric, (), source, matrix, n_dup, source_checksum=source_checksum,
-                              read_options=read_options))
+                              read_options=read_options, unit=_check_unit(unit)))
     array = as_point_array(points)
     cols = tuple(columns) if columns is not None else tuple(f"x{i}" for i in range(array.shape[1]))
     shift = scale = None
@@ -203,8 +208,18 @@ def make_cloud(
 
     metric = check_points_for_metric(array, metric)
     cloud = Cloud(array, metric, cols, source, None, count_duplicates(array), shift, scale, source_checksum,
-                  read_options)
+                  read_options, _check_unit(unit))
     return _finish(cloud)
+
+
+def _check_unit(unit):
+    if unit is None:
+        return None
+    if not isinstance(unit, str) or not unit.strip() or len(unit) > 40 or not unit.isprintable():
+        raise InvalidParameterError(
+            f"Parameter 'unit' of load_cloud must be None or a short printable name such as 'Mpc/h', 'pc' or "
+            f"'deg' (at most 40 characters). Got {unit!r} instead.", parameter="unit")
+    return unit.strip()
 
 
 def _standardize(array, metric):
