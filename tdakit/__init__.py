@@ -41,7 +41,15 @@ from tdakit.core import (
     universal_pvalues,
     witness_edge_values,
 )
-from tdakit.io import load_cloud, load_run, save_run
+from tdakit.io import (
+    SkyConversion,
+    load_cloud,
+    load_run,
+    parallax_to_cartesian,
+    read_catalogue,
+    redshift_to_cartesian,
+    save_run,
+)
 from tdakit.pipeline import RunResult, analyze, rerun
 from tdakit.study import StudyResult, subsampling_study
 
@@ -76,6 +84,10 @@ __all__ = [
     "permutation_test",
     "persistence_landscape",
     "load_cloud",
+    "read_catalogue",
+    "SkyConversion",
+    "parallax_to_cartesian",
+    "redshift_to_cartesian",
     "select_landmarks",
     "significance_table",
     "universal_pvalue_support",

@@ -25,6 +25,13 @@ def fail(name: str, function: str, requirement: str, value: object) -> InvalidPa
     )
 
 
+def _unwrap(value: object) -> object:
+    """A 0-d numpy array of numbers stands for its number (``np.array(5)`` is 5); anything else is unchanged."""
+    if isinstance(value, np.ndarray) and value.ndim == 0 and value.dtype.kind in "iuf":
+        return value.item()
+    return value
+
+
 def check_int(
     value: object,
     name: str,
@@ -37,7 +44,8 @@ def check_int(
     """Return ``value`` as an int if it is an integer (not a bool) within [low, high]."""
     bounds = f"[{'-inf' if low is None else low}, {'inf' if high is None else high}]"
     requirement = f"an int in {bounds}" + (f" ({note})" if note else "")
-    if isinstance(value, bool) or not isinstance(value, numbers.Integral):
+    value = _unwrap(value)
+    if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Integral):
         raise fail(name, function, requirement, value)
     value = int(value)
     if (low is not None and value < low) or (high is not None and value > high):
@@ -62,7 +70,8 @@ def check_float(
     right = ")" if high_open else "]"
     bounds = f"{left}{'-inf' if low is None else low}, {'inf' if high is None else high}{right}"
     requirement = f"a real number in {bounds}" + (f" ({note})" if note else "")
-    if isinstance(value, bool) or not isinstance(value, numbers.Real):
+    value = _unwrap(value)
+    if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
         raise fail(name, function, requirement, value)
     value = float(value)
     if np.isnan(value) or (np.isinf(value) and not allow_inf):
@@ -91,7 +100,12 @@ def check_bool(value: object, name: str, function: str) -> bool:
 
 
 def check_rng(value: object, function: str) -> np.random.Generator:
-    """Turn the ``rng`` argument into a Generator (int seed, SeedSequence, Generator or None)."""
+    """Turn the ``rng`` argument into a Generator (int seed, SeedSequence, Generator or None).
+
+    A Generator is used as it is (drawn from once, by the caller), so ``rng=seed`` and
+    ``rng=numpy.random.default_rng(seed)`` give the same numbers.
+    """
+    value = _unwrap(value)
     ok = value is None or isinstance(value, (np.random.Generator, np.random.SeedSequence))
     ok = ok or (isinstance(value, numbers.Integral) and not isinstance(value, bool) and int(value) >= 0)
     if not ok:
@@ -99,8 +113,17 @@ def check_rng(value: object, function: str) -> np.random.Generator:
     return np.random.default_rng(value)
 
 
+def check_real(value: object, name: str, function: str, *, requirement: str = "a real number") -> float:
+    """Return ``value`` as a float if it is a real, non-NaN number (numpy scalars included; not a bool)."""
+    value = _unwrap(value)
+    if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real) or np.isnan(float(value)):
+        raise fail(name, function, requirement, value)
+    return float(value)
+
+
 def check_dtm_power(value, function: str) -> float:
     """The DTM filtration's power p: 1 or inf (the two with closed-form edge values)."""
+    value = _unwrap(value)
     if isinstance(value, str):
         value = {"1": 1.0, "inf": np.inf}.get(value.strip().lower(), value)
     number = isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool)

@@ -11,7 +11,7 @@ from tdakit._validation import check_int, fail
 from tdakit.config import ComplexOptions
 from tdakit.core.geometry.cloud import Cloud
 from tdakit.core.geometry.landmarks import select_landmarks
-from tdakit.core.inference.compare import PermutationResult, permutation_test
+from tdakit.core.inference.compare import MAX_PERMUTATIONS, PermutationResult, permutation_test
 from tdakit.core.inference.replicates import root_seed
 from tdakit.core.topology.diagrams import Diagrams
 from tdakit.core.topology.filtrations import compute_diagrams
@@ -76,6 +76,11 @@ def compare_catalogues(
     if not isinstance(complex_options, ComplexOptions):
         raise fail("complex_options", _FN, "None or a ComplexOptions", complex_options)
     dim = check_int(dim, "dim", _FN, low=0, high=complex_options.max_dim, note="at most the complex's max_dim")
+    if progress is not None and not callable(progress):
+        raise fail("progress", _FN, "None or a callable progress(step, done, total)", progress)
+    if n_permutations is not None:  # refused before the pieces' diagrams are built, not after
+        check_int(n_permutations, "n_permutations", _FN, low=1, high=MAX_PERMUTATIONS,
+                  note="random labelings of the pieces")
     seed = root_seed(rng, _FN)
     streams = np.random.SeedSequence(seed).spawn(3)
     report = progress or (lambda step, done, total: None)

@@ -7,16 +7,42 @@ unknown key is an error that names it.
 
 from __future__ import annotations
 
+import re
 from dataclasses import asdict, dataclass, field, fields
 
 from tdakit._validation import check_bool, check_choice, check_dtm_power, check_float, check_int, fail
 
-__all__ = ["AnalysisOptions", "BandOptions", "ComplexOptions", "SamplingOptions", "StudyOptions"]
+__all__ = ["AnalysisOptions", "BandOptions", "ComplexOptions", "SamplingOptions", "StudyOptions", "parse_memory_size"]
 
 SAMPLING_METHODS = ("core_maxmin", "density", "maxmin", "random")
 FILTRATION_NAMES = ("alpha", "dtm", "rips", "witness")
 BAND_NAMES = ("auto", "bootstrap", "density", "dtm", "landscape", "none", "subsample")
 REFERENCE_KINDS = ("auto", "densest", "full")
+
+
+# Decimal units as in disk and memory sizes (GB = 10^9 bytes), binary ones with "i" (GiB = 2^30); a bare
+# K, M, G or T is binary, as in job schedulers' memory requests (common practice).
+_SIZE_UNITS = {"": 1, "b": 1, "kb": 10**3, "mb": 10**6, "gb": 10**9, "tb": 10**12, "kib": 2**10, "mib": 2**20,
+               "gib": 2**30, "tib": 2**40, "k": 2**10, "m": 2**20, "g": 2**30, "t": 2**40}
+_SIZE = re.compile(r"^\s*([0-9]*\.?[0-9]+(?:e[+-]?[0-9]+)?)\s*([a-z]*)\s*$")
+
+
+def parse_memory_size(value, name: str = "memory_budget", function: str = "ComplexOptions") -> float:
+    """Bytes from a number of bytes or a size such as ``"8GB"``, ``"512MiB"``, ``"0.5TB"`` or ``"16G"``.
+
+    GB, MB, kB, TB are powers of ten; GiB, MiB, KiB, TiB and a bare G, M, K, T powers of two.
+    ``"inf"`` (or ``float("inf")``) switches the budget off.
+    """
+    if isinstance(value, str):
+        text = value.strip().lower()
+        if text in ("inf", "infinity", "none", "unlimited"):
+            return float("inf")
+        match = _SIZE.match(text)
+        if match is None or match.group(2) not in _SIZE_UNITS:
+            raise fail(name, function, "a size in bytes such as 8GB, 512MiB, 0.5TB or 16G (GB = 10^9 bytes, "
+                       "GiB = 2^30)", value)
+        value = float(match.group(1)) * _SIZE_UNITS[match.group(2)]
+    return check_float(value, name, function, low=0.0, low_open=True, allow_inf=True, note="bytes")
 
 
 def _optional(value, check, *args, **kwargs):
@@ -94,7 +120,7 @@ class ComplexOptions(_Options):
     witness_nu: int = 1
     dtm_neighbors: int | None = None
     dtm_power: float = float("inf")
-    memory_budget: float | None = None
+    memory_budget: float | str | None = None
 
     def __post_init__(self):
         name = "ComplexOptions"
@@ -110,17 +136,17 @@ class ComplexOptions(_Options):
         _set(self, "witness_nu", check_int(self.witness_nu, "witness_nu", name, low=0, high=2))
         _set(self, "dtm_neighbors", _optional(self.dtm_neighbors, check_int, "dtm_neighbors", name, low=1))
         _set(self, "dtm_power", check_dtm_power(self.dtm_power, name))
-        _set(self, "memory_budget", _optional(self.memory_budget, check_float, "memory_budget", name, low=0.0,
-                                              low_open=True, allow_inf=True))
+        _set(self, "memory_budget", _optional(self.memory_budget, parse_memory_size, "memory_budget", name))
 
     def to_dict(self) -> dict:
         data = asdict(self)
-        data["dtm_power"] = "inf" if data["dtm_power"] == float("inf") else data["dtm_power"]  # plain JSON and TOML
+        for key in ("dtm_power", "memory_budget"):  # plain JSON and TOML have no infinity
+            data[key] = "inf" if data[key] == float("inf") else data[key]
         return data
 
     def diagram_options(self) -> dict:
         """Keyword options of :func:`compute_diagrams` other than ``filtration`` and ``max_dim``."""
-        options = self.to_dict()
+        options = asdict(self)
         del options["filtration"], options["max_dim"]
         return options
 

@@ -18,6 +18,8 @@ __all__ = [
     "TdakitWarning",
     "DuplicatePointsWarning",
     "FewWitnessesWarning",
+    "OutputWriteError",
+    "SuspiciousDataWarning",
 ]
 
 
@@ -53,6 +55,10 @@ class MemoryBudgetError(TdakitError, MemoryError):
     """A computation was refused before it started because it would not fit the memory budget."""
 
 
+class OutputWriteError(TdakitError, OSError):
+    """An output file could not be written (full disk, no permission); the message names the file."""
+
+
 class TdakitWarning(UserWarning):
     """Base class of tdakit's warnings."""
 
@@ -67,3 +73,7 @@ class FewWitnessesWarning(TdakitWarning):
 
 class BlindBandWarning(TdakitWarning):
     """A band's noise strip is taller than any bar the diagrams can hold: it cannot see anything there."""
+
+
+class SuspiciousDataWarning(TdakitWarning):
+    """The data look unlike what the options assume (radians read as degrees, an identifier column, mixed scales)."""

@@ -21,16 +21,16 @@ from tdakit._memory import PeakMemory
 from tdakit._validation import fail
 from tdakit.config import AnalysisOptions
 from tdakit.core.geometry.cloud import Cloud
-from tdakit.core.geometry.landmarks import Landmarks, select_landmarks
+from tdakit.core.geometry.landmarks import Landmarks
 from tdakit.core.inference.bands import Band
 from tdakit.core.inference.confidence import confidence_band
 from tdakit.core.inference.replicates import root_seed
 from tdakit.core.inference.tables import significance_table
 from tdakit.core.topology.diagrams import Diagrams
-from tdakit.core.topology.filtrations import compute_diagrams
+from tdakit.core.topology.filtrations import check_filtration_for, compute_diagrams
 from tdakit.errors import InvalidDataError
 
-__all__ = ["RunResult", "analyze", "auto_band", "rerun", "PREVIEW_POINTS"]
+__all__ = ["RunResult", "analyze", "auto_band", "check_options", "rerun", "PREVIEW_POINTS"]
 
 PREVIEW_POINTS = 20_000
 _FN = "analyze"
@@ -141,9 +141,22 @@ def _check_options(options) -> AnalysisOptions:
     return options
 
 
-def _step_seeds(seed: int) -> list[int]:
-    """Independent seeds for landmarks, diagrams, band and preview, from the root seed."""
-    return [int(s) for s in np.random.SeedSequence(seed).generate_state(4, np.uint32)]
+SEED_SCHEME = 2
+"""How the root seed reaches the steps; recorded in the provenance so older runs replay exactly.
+
+Scheme 2: the landmarks draw from the root seed itself, so ``analyze(cloud, rng=s)``, ``tdakit analyze --seed s``
+and ``select_landmarks(cloud, n, rng=s)`` pick the same landmarks; diagrams, band and preview draw from
+independent children of ``SeedSequence(s)``. Scheme 1 (runs made before it was recorded): the landmarks drew
+from a child too.
+"""
+
+
+def _step_seeds(seed: int, scheme: int = SEED_SCHEME) -> list[int]:
+    """Seeds for landmarks, diagrams, band and preview, from the root seed."""
+    seeds = [int(s) for s in np.random.SeedSequence(seed).generate_state(4, np.uint32)]
+    if scheme >= 2:
+        seeds[0] = seed
+    return seeds
 
 
 def analyze(
@@ -155,6 +168,7 @@ def analyze(
     executor=None,
     progress: Callable[[str, int, int], None] | None = None,
     checkpoint=None,
+    scheduler: str | None = None,
 ) -> RunResult:
     """Run the whole job on one cloud: landmarks, diagrams, confidence band, significance.
 
@@ -171,12 +185,20 @@ def analyze(
         builds its own diagrams from every point, with landmark or complex options) are
         refused.
     rng : int, Generator or None
-        Root randomness; the run records the root seed it used.
+        Root randomness; the run records the root seed it used. The landmarks draw from the
+        root seed itself: ``select_landmarks(cloud, n, rng=s)`` picks the same ones.
     n_jobs, executor, checkpoint
-        Passed to :func:`confidence_band` for the replicates.
+        Passed to :func:`confidence_band` for the replicates (the checkpoint file keeps the
+        finished replicates; a rerun with the same cloud, options and seed resumes from it
+        and gives the same numbers).
     progress : callable, optional
-        ``progress(step, done, total)`` with ``step`` in ``"landmarks"``, ``"diagrams"``,
-        ``"band"``.
+        ``progress(step, done, total)`` with ``step`` in ``"landmarks"``, ``"diagrams"``
+        (0 of 1 at the start, 1 of 1 at the end) and ``"band"`` (replicates done of the
+        total, first 0 of the total when the band starts).
+    scheduler : str, optional
+        A Dask scheduler address or ``"local"``: the landmarks and the replicates run on that
+        cluster (same numbers), and provenance records the scheduler and its workers' versions
+        (see :mod:`tdakit.distributed.scheduler`).
 
     Returns
     -------
@@ -187,18 +209,27 @@ def analyze(
     options = _check_combination(cloud, _check_options(options))
     if progress is not None and not callable(progress):
         raise fail("progress", _FN, "None or a callable progress(step, done, total)", progress)
-    seed = root_seed(rng, _FN)
-    seeds = _step_seeds(seed)
+    if scheduler is not None:  # landmarks and replicates on a Dask cluster: all logic in tdakit/distributed/
+        from tdakit.distributed.scheduler import analyze_on_scheduler
+        return analyze_on_scheduler(scheduler, cloud, options, rng=rng, n_jobs=n_jobs, executor=executor,
+                                    progress=progress, checkpoint=checkpoint)
+    return _run(cloud, options, root_seed(rng, _FN), SEED_SCHEME, progress,
+                {"n_jobs": n_jobs, "executor": executor, "checkpoint": checkpoint})
+
+
+def _run(cloud, options, seed, scheme, progress, run) -> RunResult:
+    seeds = _step_seeds(seed, scheme)
     report = progress or (lambda step, done, total: None)
     timings: dict[str, float] = {}
     with PeakMemory() as memory:
         marks = _landmarks(cloud, options, seeds[0], timings, report)
-        diagrams, band = _diagrams_and_band(cloud, marks, options, seeds, timings, report,
-                                            {"n_jobs": n_jobs, "executor": executor, "checkpoint": checkpoint})
+        diagrams, band = _diagrams_and_band(cloud, marks, options, seeds, timings, report, run)
     preview = _preview(cloud, seeds[3])
     points = cloud.points[marks.indices] if marks is not None else np.zeros((0, cloud.n_dims))
+    info = provenance(cloud, options, seed)
+    info["seed_scheme"] = scheme
     return RunResult(options, seed, marks, points, preview, cloud.points[preview], diagrams, band, timings,
-                     {"bytes": memory.peak_bytes, "scope": memory.scope}, provenance(cloud, options, seed))
+                     {"bytes": memory.peak_bytes, "scope": memory.scope}, info)
 
 
 def _landmarks(cloud, options, seed, timings, report) -> Landmarks | None:
@@ -207,8 +238,10 @@ def _landmarks(cloud, options, seed, timings, report) -> Landmarks | None:
         return None
     start = time.perf_counter()
     report("landmarks", 0, 1)
-    marks = select_landmarks(cloud, sampling.n_landmarks, method=sampling.method, rng=seed,
-                             **sampling.landmark_options())
+    from tdakit.distributed.scheduler import landmark_function  # in memory unless analyze(scheduler=...) runs
+
+    marks = landmark_function()(cloud, sampling.n_landmarks, method=sampling.method, rng=seed,
+                                **sampling.landmark_options())
     report("landmarks", 1, 1)
     timings["landmarks"] = time.perf_counter() - start
     return marks
@@ -217,13 +250,15 @@ def _landmarks(cloud, options, seed, timings, report) -> Landmarks | None:
 def _diagrams_and_band(cloud, marks, options, seeds, timings, report, run) -> tuple[Diagrams, Band | None]:
     complex_, band_options = options.complex, options.band
     start = time.perf_counter()
-    band_kwargs = {"rng": seeds[2], "progress": lambda done, total: report("band", done, total), **run,
+    total = band_options.n_subsamples if band_options.method == "landscape" else band_options.n_boot
+    band_kwargs = {"rng": seeds[2], "progress": lambda done, n: report("band", done, n), **run,
                    **band_options.to_dict()}
-    if band_options.method == "density":  # it builds its own diagrams, from every point
+    report("diagrams", 0, 1)
+    if band_options.method == "density":  # it builds its own diagrams, from every point, before the replicates
+        band_kwargs["progress"] = _after_first(lambda: report("diagrams", 1, 1), band_kwargs["progress"])
         band = confidence_band(cloud, max_dim=complex_.max_dim, **band_kwargs)
         timings["diagrams + band"] = time.perf_counter() - start
         return band.diagrams, band
-    report("diagrams", 0, 1)
     diagrams = compute_diagrams(cloud, landmarks=marks, filtration=complex_.filtration,
                                 max_dim=complex_.max_dim, rng=seeds[1], **complex_.diagram_options())
     report("diagrams", 1, 1)
@@ -231,9 +266,22 @@ def _diagrams_and_band(cloud, marks, options, seeds, timings, report, run) -> tu
     if band_options.method == "none":
         return diagrams, None
     start = time.perf_counter()
+    report("band", 0, total)
     band = confidence_band(cloud, diagrams, landmarks=marks, **band_kwargs)
     timings["band"] = time.perf_counter() - start
     return diagrams, band
+
+
+def _after_first(first: Callable[[], None], then: Callable[[int, int], None]) -> Callable[[int, int], None]:
+    """``then``, preceded once by ``first`` (the density band's diagrams are done when its replicates report)."""
+    pending = [first]
+
+    def call(done: int, total: int) -> None:
+        if pending:
+            pending.pop()()
+        then(done, total)
+
+    return call
 
 
 def auto_band(cloud: Cloud, options: AnalysisOptions) -> str:
@@ -254,6 +302,13 @@ def auto_band(cloud: Cloud, options: AnalysisOptions) -> str:
     return {"dtm": "dtm", "rips": "subsample", "alpha": "subsample"}.get(options.complex.filtration, "bootstrap")
 
 
+def check_options(cloud: Cloud, options: AnalysisOptions | dict | None = None) -> AnalysisOptions:
+    """The options :func:`analyze` would run with, or the error it would raise, without running (for front ends)."""
+    if not isinstance(cloud, Cloud):
+        raise fail("cloud", "check_options", "a Cloud from tdakit.load_cloud", cloud)
+    return _check_combination(cloud, _check_options(options))
+
+
 def _check_combination(cloud: Cloud, options: AnalysisOptions) -> AnalysisOptions:
     """Refuse options that cannot go together; record what a density run really computes."""
     import dataclasses
@@ -262,6 +317,7 @@ def _check_combination(cloud: Cloud, options: AnalysisOptions) -> AnalysisOption
 
     if options.band.method == "auto":
         options = dataclasses.replace(options, band=dataclasses.replace(options.band, method=auto_band(cloud, options)))
+    check_filtration_for(cloud, options.complex.filtration, _FN)
     if options.band.method == "dtm" and options.complex.filtration != "dtm":
         raise fail("options", _FN, "complex filtration 'dtm' with the 'dtm' band (it bounds the DTM-weighted "
                    f"filtration); for {options.complex.filtration!r} diagrams choose band 'subsample'",
@@ -332,7 +388,11 @@ def rerun(run: RunResult, cloud: Cloud | None = None, *, n_jobs: int = 1, execut
             f"The cloud passed to rerun differs from the one the run was made on (its coordinates or metric "
             f"changed: fingerprint {cloud.fingerprint[:12]} instead of {recorded['fingerprint'][:12]}).",
             parameter="cloud")
-    return analyze(cloud, run.options, rng=run.seed, n_jobs=n_jobs, executor=executor, progress=progress)
+    if progress is not None and not callable(progress):
+        raise fail("progress", "rerun", "None or a callable progress(step, done, total)", progress)
+    scheme = run.provenance.get("seed_scheme", 1)  # runs made before the scheme was recorded: scheme 1
+    return _run(cloud, _check_combination(cloud, run.options), run.seed, scheme, progress,
+                {"n_jobs": n_jobs, "executor": executor, "checkpoint": None})
 
 
 def _reload(recorded: dict) -> Cloud:

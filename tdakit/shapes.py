@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import NDArray
 
-from tdakit._validation import check_float, check_int, check_rng
+from tdakit._validation import check_float, check_int, check_rng, fail
 
 __all__ = ["circle", "sphere", "torus", "klein_bottle", "add_noise", "evenly_spaced_circle"]
 
@@ -89,5 +89,8 @@ def add_noise(points, noise: float, *, rng=None) -> NDArray[np.float64]:
     """``points`` plus isotropic Gaussian noise of standard deviation ``noise`` (a new array)."""
     noise = check_float(noise, "noise", "add_noise", low=0.0)
     generator = check_rng(rng, "add_noise")
-    points = np.asarray(points, dtype=np.float64)
+    try:
+        points = np.asarray(points, dtype=np.float64)
+    except (TypeError, ValueError):
+        raise fail("points", "add_noise", "an array of real coordinates", points) from None
     return points + generator.normal(scale=noise, size=points.shape) if noise > 0 else points.copy()

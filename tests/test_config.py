@@ -44,3 +44,28 @@ def test_bad_options_name_the_parameter(build, name):
     with pytest.raises(InvalidParameterError) as info:
         build()
     assert info.value.parameter == name and f"'{name}'" in str(info.value)
+
+
+@pytest.mark.parametrize("text, expected", [
+    # SI prefixes are powers of ten, IEC binary prefixes (Ki, Mi, Gi, Ti) powers of two (IEC 80000-13, from
+    # memory); a bare K/M/G/T is binary as in job schedulers' memory requests (common practice).
+    ("8GB", 8e9), ("512MiB", 512 * 2**20), ("0.5TB", 5e11), ("16G", 16 * 2**30), ("1 kB", 1e3), ("2048", 2048.0),
+    ("1.5e3MB", 1.5e9), ("inf", float("inf")), (4e9, 4e9)])
+def test_memory_sizes(text, expected):
+    from tdakit.config import parse_memory_size
+
+    assert parse_memory_size(text) == expected
+    assert ComplexOptions(memory_budget=text).memory_budget == expected
+
+
+@pytest.mark.parametrize("text", ["8XB", "GB", "-1GB", "0", "eight GB", "", True])
+def test_bad_memory_sizes_name_the_key(text):
+    with pytest.raises(InvalidParameterError) as info:
+        ComplexOptions(memory_budget=text)
+    assert info.value.parameter == "memory_budget"
+
+
+def test_an_unlimited_budget_survives_plain_dicts():
+    options = ComplexOptions(memory_budget="inf")
+    assert options.to_dict()["memory_budget"] == "inf" and options.diagram_options()["memory_budget"] == float("inf")
+    assert ComplexOptions.from_dict(options.to_dict()) == options

@@ -1,5 +1,7 @@
 """The one pipeline: analyze, its provenance, reproducibility and rerun."""
 
+import warnings
+
 import numpy as np
 import pytest
 
@@ -123,3 +125,89 @@ def test_contradictory_options_are_refused(circle_file, options):
     with pytest.raises(InvalidParameterError, match="options"):
         analyze(tdakit.load_cloud(circle_file), options, rng=1)
 
+
+
+def test_rng_in_analyze_and_in_select_landmarks_choose_the_same_landmarks(circle_file):
+    cloud = tdakit.load_cloud(circle_file)
+    for method in ("random", "maxmin", "density"):
+        run = analyze(cloud, {"sampling": {"n_landmarks": 25, "method": method}, "complex": {"filtration": "rips"},
+                              "band": {"method": "none"}}, rng=1)
+        chosen = tdakit.select_landmarks(cloud, 25, method=method, rng=1)
+        np.testing.assert_array_equal(run.landmarks.indices, chosen.indices)
+
+
+def test_runs_recorded_before_the_seed_scheme_replay_their_own_landmarks(circle_file):
+    # Runs saved before 'seed_scheme' was recorded drew their landmarks from a child seed: rerun keeps that.
+    import dataclasses
+
+    cloud = tdakit.load_cloud(circle_file)
+    options = {"sampling": {"n_landmarks": 25, "method": "random"}, "complex": {"filtration": "rips"},
+               "band": {"method": "none"}}
+    run = analyze(cloud, options, rng=3)
+    old = dataclasses.replace(run, provenance={k: v for k, v in run.provenance.items() if k != "seed_scheme"})
+    child = int(np.random.SeedSequence(3).generate_state(4, np.uint32)[0])
+    np.testing.assert_array_equal(rerun(old).landmarks.indices,
+                                  tdakit.select_landmarks(cloud, 25, method="random", rng=child).indices)
+    np.testing.assert_array_equal(rerun(run).landmarks.indices, run.landmarks.indices)
+
+
+def test_progress_reports_landmarks_diagrams_and_band_for_every_band(circle_file):
+    cloud = tdakit.load_cloud(circle_file)
+    for options in ({"band": {"n_boot": 16}},  # auto: the density band, which builds its own diagrams
+                    {"sampling": {"n_landmarks": 30}, "complex": {"filtration": "rips"},
+                     "band": {"method": "bootstrap", "n_boot": 16}}):
+        calls = []
+        analyze(cloud, options, rng=2, progress=lambda step, done, total, seen=calls: seen.append((step, done, total)))
+        steps = [c[0] for c in calls]
+        assert ("diagrams", 0, 1) in calls and ("diagrams", 1, 1) in calls
+        assert steps.index("diagrams") < steps.index("band") and calls[-1] == ("band", 16, 16)
+        assert max(i for i, s in enumerate(steps) if s == "diagrams") < max(i for i, s in enumerate(steps)
+                                                                             if s == "band")
+        band = [done for step, done, _ in calls if step == "band"]
+        assert band == sorted(band) and len(band) >= 2
+
+
+def test_the_checkpoint_reaches_the_band_and_a_rerun_recomputes_nothing(circle_file, tmp_path):
+    cloud = tdakit.load_cloud(circle_file)
+    options = {"sampling": {"n_landmarks": 30}, "complex": {"filtration": "rips"},
+               "band": {"method": "bootstrap", "n_boot": 12}}
+    first = analyze(cloud, options, rng=4, checkpoint=tmp_path / "band.npz")
+    assert np.load(tmp_path / "band.npz")["indices"].tolist() == list(range(12))
+    calls = []
+    again = analyze(cloud, options, rng=4, checkpoint=tmp_path / "band.npz",
+                    progress=lambda step, done, total: calls.append((step, done)))
+    assert [c for c in calls if c[0] == "band"] == [("band", 0)]  # no replicate was computed again
+    assert_same(first.band.replicates, again.band.replicates)
+
+
+def test_check_options_resolves_auto_and_refuses_contradictions(circle_file):
+    from tdakit.pipeline import check_options
+
+    cloud = tdakit.load_cloud(circle_file)
+    resolved = check_options(cloud, {"band": {"n_boot": 5}})
+    assert resolved.band.method == "density" and resolved.sampling.n_landmarks is None
+    with pytest.raises(InvalidParameterError, match="options"):
+        check_options(cloud, {"sampling": {"method": "random"}, "band": {"method": "density"}})
+
+
+def test_alpha_on_a_periodic_box_is_refused_before_any_landmark_is_chosen(monkeypatch):
+    import tdakit.pipeline as pipeline
+
+    cloud = tdakit.load_cloud(np.random.default_rng(1).uniform(0, 10, (300, 3)), metric="periodic", box=10)
+    monkeypatch.setattr(pipeline, "_landmarks", lambda *a, **k: pytest.fail("landmarks chosen before the refusal"))
+    options = tdakit.AnalysisOptions.from_dict({"complex": {"filtration": "alpha"}, "band": {"method": "subsample"}})
+    with pytest.raises(InvalidParameterError, match="alpha.*periodic"):
+        pipeline.check_options(cloud, options)
+    with pytest.raises(InvalidParameterError, match="alpha.*periodic"):
+        tdakit.analyze(cloud, options, rng=1)
+
+
+def test_resampling_bands_with_core_landmarks_fit_the_kept_share_of_each_sample():
+    # 150 core landmarks on 50 % of an 800-point cloud: a 200-point landscape subsample keeps only 100 points.
+    cloud = tdakit.load_cloud(np.random.default_rng(2).normal(size=(800, 2)))
+    options = {"sampling": {"method": "core_maxmin", "n_landmarks": 150, "keep_fraction": 0.5},
+               "complex": {"filtration": "rips"}, "band": {"method": "landscape", "n_boot": 10}}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        run = tdakit.analyze(cloud, options, rng=1)
+    assert run.band.method == "landscape" and np.all(np.isfinite(run.band.radii))

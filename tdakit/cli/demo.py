@@ -7,6 +7,8 @@ import time
 import pandas as pd
 
 import tdakit
+from tdakit.cli.options import replicate_count
+from tdakit.cli.outputs import FolderLock, prepare_folder
 from tdakit.cli.progress import step_bars
 from tdakit.config import AnalysisOptions, BandOptions, ComplexOptions, SamplingOptions
 from tdakit.pipeline import analyze
@@ -19,24 +21,29 @@ def demo_options(n_landmarks: int = 200, n_boot: int = 100) -> AnalysisOptions:
                            BandOptions(n_boot=n_boot))
 
 
+STEM = "marrowfield"
+
+
 def run(args, demo_file) -> int:
+    from tdakit.cli.commands import publish_run
+
     start = time.perf_counter()
-    cloud = tdakit.load_cloud(demo_file, columns=["x", "y", "z"], metric="periodic", box=MARROWFIELD_BOX)
-    print(f"Loaded {cloud.n_points} halos from {demo_file.name} (periodic box of side {MARROWFIELD_BOX:g}).")
+    n_boot = replicate_count(args)
+    options = demo_options(args.landmarks, 100 if n_boot is None else n_boot)
+    out = prepare_folder(args.out)
+    cloud = tdakit.load_cloud(demo_file, columns=["x", "y", "z"], metric="periodic", box=MARROWFIELD_BOX,
+                              unit="Mpc/h")
+    print(f"Loaded {cloud.n_points} halos from {demo_file.name} (periodic box of side {MARROWFIELD_BOX:g} Mpc/h).")
     with step_bars(not args.quiet) as report:
-        result = analyze(cloud, demo_options(args.landmarks, args.n_boot), rng=args.seed, progress=report)
+        result = analyze(cloud, options, rng=args.seed, progress=report)
     print(result.summary())
     print("Longest-lived loops (H1). Planted: one ring of filaments; the periodic box (a 3-torus) adds three loops "
           "that wrap around it:")
     table = result.table
     _print_top(table[table.dimension == 1], cloud)
-    args.out.mkdir(parents=True, exist_ok=True)
-    written = [result.save(args.out / "marrowfield"), args.out / "features.csv"]
-    table.to_csv(written[1], index=False)
-    if not args.no_figures:
-        from tdakit.plotting import write_run_figures
-
-        written += write_run_figures(result, args.out, stem="marrowfield", formats=("pdf", "png"))
+    with FolderLock(out, STEM):
+        # the same file names as 'tdakit analyze': marrowfield.tdkrun, marrowfield_features.csv, figures
+        written = publish_run(result, out, STEM, () if args.no_figures else ("pdf", "png"), args)
     print("Wrote " + ", ".join(str(p) for p in written) + f" ({time.perf_counter() - start:.1f} s in all).")
     return 0
 

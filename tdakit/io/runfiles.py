@@ -15,9 +15,16 @@ A ZIP archive (stored, not compressed) with the suffix ``.tdkrun`` holding
     Each array in NumPy's ``.npy`` format (no pickled objects).
 
 The file is written to a temporary name in the target folder and renamed over
-the target only when complete, so a crash mid-write leaves any earlier file
-intact. Reading checks the format name and version, the ZIP checksums and each
-array's SHA-256.
+the target only when complete (:func:`tdakit.io._atomic.atomic_output`), so a crash
+mid-write leaves any earlier file intact.
+
+Reading never trusts the file: only a regular file is opened (never a pipe), member
+sizes are bounded from the ZIP directory before anything is inflated (``run.json`` at
+most ``MAX_RECORD_BYTES``; each array's declared size must match its member), the JSON
+nesting depth is bounded before parsing, and every field and array is checked against the
+schema (:mod:`tdakit.io._runschema`) before anything is built. Members other than
+``run.json`` and the listed arrays are ignored. Every failure is an
+:class:`~tdakit.errors.InvalidDataError` naming the file and the field.
 """
 
 from __future__ import annotations
@@ -26,20 +33,25 @@ import hashlib
 import io
 import json
 import os
-import tempfile
 import zipfile
 from pathlib import Path
 
 import numpy as np
 
 from tdakit._validation import fail
-from tdakit.errors import DataFileNotFoundError, InvalidDataError
+from tdakit.errors import DataFileNotFoundError, InvalidDataError, TdakitError
+from tdakit.io import _runschema as schema
+from tdakit.io._atomic import atomic_output
+from tdakit.io._binary import ZIP_ERRORS, check_member, npy_from_bytes, open_zip, read_member
+from tdakit.io._files import as_path, describe_size, open_regular
 
 __all__ = ["save_run", "load_run", "RUN_FORMAT_VERSION", "RUN_SUFFIX"]
 
 RUN_FORMAT = "tdakit run"
 RUN_FORMAT_VERSION = 1
 RUN_SUFFIX = ".tdkrun"
+MAX_RECORD_BYTES = 32 * 2**20  # run.json: written files hold ~10-100 kB
+_NPY_HEADER_MAX = 65_536 + 16  # a .npy header is at most 64 kB (numpy's own limit) plus the magic
 
 
 class _Packer:
@@ -133,21 +145,14 @@ def save_run(run, path) -> Path:
 
 
 def _write_atomically(path: Path, record: dict, arrays: dict) -> None:
-    handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".partial")
-    try:
-        with os.fdopen(handle, "wb") as stream:
+    with atomic_output(path, what="run file") as temporary:
+        with open(temporary, "wb") as stream:
             with zipfile.ZipFile(stream, "w", compression=zipfile.ZIP_STORED) as archive:
                 archive.writestr("run.json", json.dumps(record, indent=1))
                 for name, array in arrays.items():
                     buffer = io.BytesIO()
                     np.save(buffer, array, allow_pickle=False)
                     archive.writestr(f"arrays/{name}.npy", buffer.getvalue())
-            stream.flush()
-            os.fsync(stream.fileno())
-        os.replace(temporary, path)
-    except BaseException:
-        Path(temporary).unlink(missing_ok=True)
-        raise
 
 
 def _corrupt(path, reason: str) -> InvalidDataError:
@@ -155,59 +160,116 @@ def _corrupt(path, reason: str) -> InvalidDataError:
                             f"Write it again with `tdakit analyze` or RunResult.save.", parameter="path")
 
 
-def _read_archive(path: Path) -> tuple[dict, dict]:
+def _restate(path, exc: InvalidDataError) -> InvalidDataError:
+    """A reading helper's error restated as a run-file error (its own file label removed)."""
+    label = f"The run file {str(path)!r}"
+    text = str(exc)
+    text = text[len(label):].lstrip(": ,") if text.startswith(label) else text
+    return _corrupt(path, text.rstrip("."))
+
+
+def _member(archive, name: str, path, size: int, limit: int | None = None) -> bytes:
     try:
-        with zipfile.ZipFile(path) as archive:
-            bad = archive.testzip()
-            if bad is not None:
-                raise _corrupt(path, f"member {bad!r} fails its checksum")
-            record = json.loads(archive.read("run.json"))
-            _check_version(path, record)
-            arrays = {name: np.load(io.BytesIO(archive.read(f"arrays/{name}.npy")), allow_pickle=False)
-                      for name in record.get("arrays", {})}
-    except zipfile.BadZipFile as exc:
-        raise _corrupt(path, f"not a complete ZIP archive ({exc}); it may be truncated") from None
-    except KeyError as exc:
-        raise _corrupt(path, f"missing part {exc}") from None
-    except (ValueError, EOFError, OSError) as exc:
-        raise _corrupt(path, f"unreadable content ({exc})") from None
-    for name, meta in record["arrays"].items():
-        if hashlib.sha256(np.ascontiguousarray(arrays[name]).tobytes()).hexdigest() != meta["sha256"]:
-            raise _corrupt(path, f"array {name!r} does not match its recorded checksum")
-    return record, arrays
+        info = archive.getinfo(name)
+    except KeyError:
+        raise _corrupt(path, f"missing part {name!r}") from None
+    label = f"The run file {str(path)!r}"
+    check_member(info, size, label, limit=limit, parameter="path")
+    return read_member(archive, info, label, parameter="path")
 
 
-def _check_version(path, record) -> None:
-    if not isinstance(record, dict) or record.get("format") != RUN_FORMAT:
-        raise _corrupt(path, "run.json does not describe a tdakit run")
-    version = record.get("format_version")
-    if not isinstance(version, int) or version < 1:
-        raise _corrupt(path, f"invalid format version {version!r}")
+def _read_record(archive, path, size: int) -> dict:
+    raw = _member(archive, "run.json", path, size, limit=MAX_RECORD_BYTES)
+    try:
+        schema.check_text(raw)
+        record = json.loads(raw.decode("utf-8"))
+    except schema.SchemaError as exc:
+        raise _corrupt(path, str(exc)) from None
+    except (UnicodeDecodeError, ValueError, RecursionError) as exc:
+        raise _corrupt(path, f"'run.json' is not valid JSON ({str(exc)[:120]})") from None
+    try:
+        version = schema.check_header(record, RUN_FORMAT_VERSION)
+    except schema.SchemaError as exc:
+        raise _corrupt(path, str(exc)) from None
     if version > RUN_FORMAT_VERSION:
         raise InvalidDataError(
-            f"The run file {str(path)!r} has format version {version} (written by {record.get('written_by')}); "
-            f"this tdakit reads versions up to {RUN_FORMAT_VERSION}. Upgrade tdakit to read it.", parameter="path")
+            f"The run file {str(path)!r} has format version {version} (written by {str(record.get('written_by'))[:60]}"
+            f"); this tdakit reads versions up to {RUN_FORMAT_VERSION}. Upgrade tdakit to read it.", parameter="path")
+    return record
+
+
+def _read_array(archive, name: str, spec, path, size: int) -> np.ndarray:
+    member = f"arrays/{name}.npy"
+    try:
+        info = archive.getinfo(member)
+    except KeyError:
+        raise _corrupt(path, f"array {name!r} is listed but its member {member!r} is missing") from None
+    if not spec.n_bytes <= info.file_size <= spec.n_bytes + _NPY_HEADER_MAX:
+        raise _corrupt(path, f"array {name!r} declares shape {spec.shape} and type {spec.dtype} "
+                             f"({describe_size(spec.n_bytes)}) but its member holds {describe_size(info.file_size)}; "
+                             f"it was not read")
+    data = _member(archive, member, path, size)
+    array = npy_from_bytes(data, f"The run file {str(path)!r}: array {name!r}", parameter="path")
+    if array.shape != spec.shape or array.dtype != spec.dtype:
+        raise _corrupt(path, f"array {name!r} has shape {array.shape} and type {array.dtype} where the arrays "
+                             f"table declares shape {spec.shape} and type {spec.dtype}")
+    if hashlib.sha256(np.ascontiguousarray(array).tobytes()).hexdigest() != spec.sha256:
+        raise _corrupt(path, f"array {name!r} does not match its recorded checksum")
+    return array
+
+
+def _read_archive(path: Path) -> tuple[dict, dict]:
+    with open_regular(path, "run file", "path") as handle:
+        size = os.fstat(handle.fileno()).st_size
+        try:
+            with open_zip(handle, f"The run file {str(path)!r}", "path") as archive:
+                record = _read_record(archive, path, size)
+                try:
+                    specs = schema.array_specs(record)
+                except schema.SchemaError as exc:
+                    raise _corrupt(path, str(exc)) from None
+                arrays = {name: _read_array(archive, name, spec, path, size) for name, spec in specs.items()}
+        except InvalidDataError as exc:
+            if "Write it again" in str(exc) or "Upgrade tdakit" in str(exc):
+                raise
+            raise _restate(path, exc) from None
+        except ZIP_ERRORS as exc:  # anything else the ZIP layer raises on a damaged file
+            raise _corrupt(path, f"unreadable content ({type(exc).__name__}: {str(exc)[:120]})") from None
+    try:
+        schema.validate(record, arrays)
+    except schema.SchemaError as exc:
+        raise _corrupt(path, str(exc)) from None
+    return record, arrays
 
 
 def load_run(path):
     """Read a run file written by :func:`save_run`; figures and tables need no recomputation.
+
+    Parameters
+    ----------
+    path : str, bytes or path
+        The ``.tdkrun`` file.
+
+    Returns
+    -------
+    RunResult
 
     Raises
     ------
     DataFileNotFoundError
         No such file.
     InvalidDataError
-        The file is truncated, corrupt, not a run file, or from a newer format version.
+        The file is not a regular file, is truncated, corrupt, not a run file, from a newer format
+        version, inflates beyond its bounds, or a field or array breaks the format's schema
+        (:mod:`tdakit.io._runschema`); the message names the file and the field.
     """
-    if not isinstance(path, (str, os.PathLike)):
+    if not isinstance(path, (str, bytes, os.PathLike)):
         raise fail("path", "load_run", "a file path", path)
-    path = Path(path)
-    if not path.is_file():
-        raise DataFileNotFoundError(f"No run file at {str(path)!r}.", parameter="path")
+    path = as_path(path)
     record, arrays = _read_archive(path)
     try:
         return _build(_unpack(record, arrays))
-    except (KeyError, TypeError, ValueError) as exc:
+    except (KeyError, TypeError, ValueError, AttributeError, TdakitError) as exc:
         raise _corrupt(path, f"incomplete record ({exc!r})") from None
 
 

@@ -5,8 +5,9 @@ from __future__ import annotations
 from tdakit.pipeline import analyze
 
 
-def run_analysis(cloud, options, seed, *, progress):
-    return analyze(cloud, options, rng=seed, progress=progress)
+def run_analysis(cloud, options, seed, settings=None, *, progress):
+    """``settings``: the other keyword arguments of :func:`analyze` (``n_jobs``, ``scheduler``, ``checkpoint``)."""
+    return analyze(cloud, options, rng=seed, progress=progress, **(settings or {}))
 
 
 def run_study(cloud, options, seed, *, progress):

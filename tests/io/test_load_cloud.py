@@ -1,9 +1,17 @@
+import warnings
+
 import numpy as np
 import pandas as pd
 import pytest
 
 import tdakit
-from tdakit.errors import DataFileNotFoundError, DuplicatePointsWarning, InvalidDataError, InvalidParameterError
+from tdakit.errors import (
+    DataFileNotFoundError,
+    DuplicatePointsWarning,
+    InvalidDataError,
+    InvalidParameterError,
+    SuspiciousDataWarning,
+)
 
 
 def distance(cloud, i, j):
@@ -185,3 +193,63 @@ def test_unknown_metric_and_column_list_the_valid_ones(table):
     frame = pd.DataFrame(table, columns=["a", "b", "c"])
     with pytest.raises(InvalidParameterError, match="valid names: 'a', 'b', 'c'"):
         tdakit.load_cloud(frame, columns=["a", "d"])
+
+
+# -- warnings about data that load but look misread (issue 15 item 4) -------------------------
+def _suspicious(record):
+    return [w for w in record if issubclass(w.category, SuspiciousDataWarning)]
+
+
+def test_radians_given_to_the_angular_metric_are_warned():
+    rng = np.random.default_rng(5)
+    radians = np.column_stack([rng.uniform(0, 2 * np.pi, 200), np.arcsin(rng.uniform(-1, 1, 200))])
+    with pytest.warns(SuspiciousDataWarning, match="look like radians"):
+        tdakit.load_cloud(radians, metric="angular")
+    with warnings.catch_warnings(record=True) as record:
+        warnings.simplefilter("always")
+        tdakit.load_cloud(np.degrees(radians), metric="angular")
+        tdakit.load_cloud(radians, metric="angular", unit="deg")  # the user says degrees: no warning
+    assert not _suspicious(record)
+
+
+def test_identifier_column_is_warned_unless_columns_are_chosen(tmp_path):
+    rng = np.random.default_rng(6)
+    table = np.column_stack([np.arange(1, 51), rng.normal(size=(50, 2))])
+    np.savetxt(tmp_path / "ids.csv", table, delimiter=",", header="id,x,y", comments="", fmt="%.17g")
+    with pytest.warns(SuspiciousDataWarning, match=r"Column 0 \('id'\).*row identifier"):
+        tdakit.load_cloud(tmp_path / "ids.csv")
+    with warnings.catch_warnings(record=True) as record:
+        warnings.simplefilter("always")
+        tdakit.load_cloud(tmp_path / "ids.csv", columns=["id", "x", "y"])  # chosen on purpose
+        tdakit.load_cloud(table[rng.permutation(50)])  # shuffled: not increasing
+    assert not _suspicious(record)
+
+
+def test_column_scales_apart_by_orders_of_magnitude_are_warned():
+    rng = np.random.default_rng(7)
+    table = rng.normal(size=(100, 3)) * [1.0, 5e3, 1.0]
+    with pytest.warns(SuspiciousDataWarning, match=r"standardize=True"):
+        tdakit.load_cloud(table)
+    with warnings.catch_warnings(record=True) as record:
+        warnings.simplefilter("always")
+        tdakit.load_cloud(table, standardize=True)
+        tdakit.load_cloud(rng.normal(size=(100, 3)) * [1.0, 500.0, 1.0])  # below the ratio of 1000
+    assert not _suspicious(record)
+
+
+def test_no_data_warning_on_the_bundled_demo_data():
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[2] / "datasets"
+    with warnings.catch_warnings(record=True) as record:
+        warnings.simplefilter("always")
+        tdakit.load_cloud(root / "marrowfield_halos.csv", columns=["x", "y", "z"], metric="periodic", box=100)
+        tdakit.load_cloud(root / "tidewater_readings.npz", key="points")
+    assert not _suspicious(record), [str(w.message) for w in record]
+
+
+def test_errors_of_a_text_file_name_its_line(tmp_path):
+    # Data row 1 is line 5 of the file (a comment and the header come first, a blank line between).
+    (tmp_path / "box.csv").write_text("# box\nx,y\n1,1\n\n12,1\n")
+    with pytest.raises(InvalidDataError, match=r"row 1 \(line 5 of the file\)"):
+        tdakit.load_cloud(tmp_path / "box.csv", metric="periodic", box=10)

@@ -1,14 +1,18 @@
 """Run files: every field round-trips; writes are atomic; damaged or newer files are refused clearly."""
 
 import json
+import os
+import stat
+import subprocess
 import zipfile
 
 import numpy as np
+import pandas as pd
 import pytest
 
 import tdakit
-from tdakit.errors import DataFileNotFoundError, InvalidDataError
-from tdakit.io import load_run, runfiles, save_run
+from tdakit.errors import DataFileNotFoundError, InvalidDataError, InvalidParameterError, OutputWriteError
+from tdakit.io import atomic_output, load_run, runfiles, save_run, write_table
 from tdakit.pipeline import analyze, rerun
 from tdakit.shapes import circle
 from tests.helpers import assert_same
@@ -129,3 +133,111 @@ def test_other_files_are_refused(tmp_path, data_file):
     with pytest.raises(DataFileNotFoundError):
         save_run(analyze(tdakit.load_cloud(data_file), {"sampling": {"n_landmarks": 10}, "band": {"method": "none"}}),
                  tmp_path / "no" / "such" / "folder")
+
+
+# -- atomic outputs ------------------------------------------------------------------------------
+def _normal_mode(folder):
+    probe = folder / "probe.txt"
+    probe.write_text("x")
+    mode = stat.S_IMODE(probe.stat().st_mode)
+    probe.unlink()
+    return mode
+
+
+def test_write_table_is_atomic_and_has_normal_permissions(run, tmp_path):
+    path = write_table(run.table, tmp_path / "features.csv")
+    assert path == tmp_path / "features.csv"
+    assert len(pd.read_csv(path)) == len(run.table)
+    mode = _normal_mode(tmp_path)
+    assert stat.S_IMODE(path.stat().st_mode) == mode
+    assert stat.S_IMODE(run.save(tmp_path / "r").stat().st_mode) == mode  # run files and tables alike
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["features.csv", "r.tdkrun"]
+
+
+def test_permissions_follow_the_umask(run, tmp_path):
+    old = os.umask(0o077)
+    try:
+        path = write_table(run.table, tmp_path / "private.csv")
+    finally:
+        os.umask(old)
+    assert stat.S_IMODE(path.stat().st_mode) == 0o600
+
+
+def test_interrupted_write_keeps_the_old_file_and_no_temporary(tmp_path):
+    path = tmp_path / "features.csv"
+    path.write_text("old complete content\n")
+    with pytest.raises(KeyboardInterrupt):
+        with atomic_output(path) as temporary:
+            assert temporary.parent == tmp_path and temporary.suffix == ".csv"  # writers can infer the format
+            temporary.write_text("half of the new")
+            raise KeyboardInterrupt
+    assert path.read_text() == "old complete content\n"
+    assert [p.name for p in tmp_path.iterdir()] == ["features.csv"]
+
+
+def test_leftovers_of_a_killed_writer_are_listed(tmp_path):
+    from tdakit.io._atomic import leftover_temporaries
+
+    path = tmp_path / "features.csv"
+    with pytest.raises(KeyboardInterrupt), atomic_output(path) as temporary:
+        kept = temporary.read_bytes()  # exists while writing
+        raise KeyboardInterrupt
+    assert kept == b"" and leftover_temporaries(path) == []
+    stale = tmp_path / ".features.csv.abc123.partial.csv"  # what a kill -9 mid-write leaves
+    stale.write_text("half")
+    (tmp_path / ".other.csv.x.partial.csv").write_text("not ours")
+    assert leftover_temporaries(path) == [stale]
+
+
+def test_a_figure_can_be_written_through_the_helper(tmp_path):
+    from matplotlib.figure import Figure
+
+    figure = Figure()
+    figure.add_subplot().plot([0, 1], [1, 0])
+    with atomic_output(tmp_path / "plot.pdf", what="figure") as temporary:
+        figure.savefig(temporary)
+    assert (tmp_path / "plot.pdf").read_bytes().startswith(b"%PDF")
+    assert [p.name for p in tmp_path.iterdir()] == ["plot.pdf"]
+
+
+def test_write_errors_name_the_file(run, tmp_path):
+    with pytest.raises(DataFileNotFoundError, match="no_folder"):
+        write_table(run.table, tmp_path / "no_folder" / "f.csv")
+    (tmp_path / "taken.csv").mkdir()
+    with pytest.raises(OutputWriteError, match="taken.csv"):
+        write_table(run.table, tmp_path / "taken.csv")
+    with pytest.raises(InvalidParameterError, match="'table'"):
+        write_table(run.table.to_numpy(), tmp_path / "f.csv")
+
+
+@pytest.fixture
+def full_disk(tmp_path):
+    """A 64 kB tmpfs (needs root and mount); skipped where it cannot be mounted."""
+    mount = tmp_path / "small"
+    mount.mkdir()
+    done = subprocess.run(["mount", "-t", "tmpfs", "-o", "size=64k", "tmpfs", str(mount)], capture_output=True)
+    if done.returncode != 0:
+        pytest.skip(f"cannot mount a small tmpfs here ({done.stderr.decode(errors='replace').strip()})")
+    try:
+        yield mount
+    finally:
+        subprocess.run(["umount", str(mount)], check=False)
+
+
+def test_full_disk_leaves_the_old_table_and_no_partial_file(run, full_disk):
+    path = full_disk / "features.csv"
+    write_table(run.table.head(3), path)
+    before = path.read_bytes()
+    big = pd.DataFrame({"x": np.arange(20_000, dtype=float), "label": ["a long label to fill the disk"] * 20_000})
+    with pytest.raises(OutputWriteError, match=r"features\.csv.*no space left"):
+        write_table(big, path)
+    assert path.read_bytes() == before
+    assert [p.name for p in full_disk.iterdir()] == ["features.csv"]
+
+
+def test_full_disk_while_saving_a_run(run, full_disk, tmp_path):
+    filler = full_disk / "filler.bin"
+    filler.write_bytes(bytes(60_000))
+    with pytest.raises(OutputWriteError, match=r"run\.tdkrun.*no space left"):
+        run.save(full_disk / "run")
+    assert sorted(p.name for p in full_disk.iterdir()) == ["filler.bin"]

@@ -22,6 +22,7 @@ from tdakit.plotting import (
     write_run_figures,
 )
 from tdakit.shapes import circle
+from tests.plotting.layout import drawn_texts, layout_problems
 
 
 def make_diagrams(per_dim, max_scale=np.inf, cut=None):
@@ -95,12 +96,17 @@ def test_every_drawing_handles_edge_cases(case, with_band):
         assert figure_bytes(drawn["ax"].figure)[:4] == b"\x89PNG"
 
 
-def test_never_dies_and_cap_rows_are_distinct():
+def test_never_dies_band_sits_above_the_axes_and_cap_row_inside():
+    """Essential classes live in their own labelled band above the scale (cut by a break mark); classes alive
+    at the cap sit on the cap line inside the axes."""
     diagrams = EDGE_CASES["capped"]()
     drawn = plot_diagram(diagrams)
-    top = drawn["never_dies"][0].get_offsets()[:, 1]
-    cap = drawn["at_cap"][1].get_offsets()[:, 1]
-    assert cap.tolist() == [1.0] and top[0] > 1.0
+    band, ax = drawn["never_dies_ax"], drawn["ax"]
+    assert drawn["never_dies"][0].axes is band and len(drawn["never_dies"][0].get_offsets()) == 1
+    assert drawn["at_cap"][1].axes is ax and drawn["at_cap"][1].get_offsets()[:, 1].tolist() == [1.0]
+    ax.figure.draw_without_rendering()
+    assert band.get_window_extent().y0 > ax.get_window_extent().y1
+    assert "never" in band.get_ylabel() and "dies" in band.get_ylabel()
 
 
 def test_run_figures_without_pyplot(tmp_path):
@@ -195,3 +201,100 @@ def test_svg_does_not_depend_on_what_was_saved_before(run, tmp_path):
     save_figure(first, tmp_path / "first.png", dpi=72)
     fresh = summary_figure(run)
     assert save_figure(first, tmp_path / "a.svg").read_bytes() == save_figure(fresh, tmp_path / "b.svg").read_bytes()
+
+
+def _texts(figure):
+    return [t.get_text() for t in drawn_texts(figure)]
+
+
+def test_one_dimensional_cloud_draws_a_histogram_with_a_rug(tmp_path):
+    """1-D data used to crash the cloud figure: now a histogram, the landmarks on a rug below it."""
+    values = np.r_[np.random.default_rng(0).normal(0, 1, 150), np.random.default_rng(1).normal(6, 1, 150)]
+    result = analyze(tdakit.load_cloud(values[:, None], unit="kpc"),
+                     {"sampling": {"n_landmarks": 30}, "complex": {"max_dim": 0}, "band": {"n_boot": 10}}, rng=0)
+    drawn = plot_cloud(result, dim=0)
+    assert len(drawn["points"]) > 0 and drawn["landmarks"].get_offsets().shape == (30, 2)
+    assert drawn["ax"].get_xlabel().endswith("(kpc)")
+    assert layout_problems(drawn["ax"].figure) == []
+    assert len(write_run_figures(result, tmp_path, formats=("png",))) == 6
+
+
+def test_angular_cloud_is_drawn_on_an_equal_area_sky():
+    rng = np.random.default_rng(2)
+    longitude = rng.uniform(0, 360, 300)
+    points = np.c_[longitude, 20 * np.sin(np.radians(longitude)) + rng.normal(0, 3, 300)]
+    result = analyze(tdakit.load_cloud(points, metric="angular"),
+                     {"sampling": {"n_landmarks": 40}, "band": {"n_boot": 10}}, rng=0)
+    drawn = plot_cloud(result)
+    assert drawn["ax"].name == "mollweide"
+    shown = drawn["points"].get_offsets()
+    assert shown[:, 0].min() >= -np.pi and shown[:, 0].max() < np.pi  # longitudes wrapped to [-180, 180)
+    expected = np.radians((result.preview_points[:, 0] + 180) % 360 - 180)
+    assert np.allclose(shown[:, 0], expected) and np.allclose(shown[:, 1], np.radians(result.preview_points[:, 1]))
+    assert layout_problems(drawn["ax"].figure) == []
+    from tdakit.errors import InvalidParameterError
+    from tdakit.plotting import new_figure
+
+    with pytest.raises(InvalidParameterError, match="'ax'"):
+        plot_cloud(result, ax=new_figure().add_subplot())
+
+
+def test_every_scale_axis_and_the_caption_carry_the_unit():
+    cloud = tdakit.load_cloud(circle(300, noise=0.03, rng=1), unit="Mpc/h")
+    result = analyze(cloud, {"sampling": {"n_landmarks": 40}, "band": {"method": "bootstrap", "n_boot": 10}}, rng=4)
+    assert result.unit == "Mpc/h"
+    unit = result.unit
+    diagram = plot_diagram(result.diagrams, result.band, unit=unit)["ax"]
+    assert diagram.get_xlabel() == "birth (Mpc/h)" and diagram.get_ylabel() == "death (Mpc/h)"
+    assert plot_barcode(result.diagrams, result.band, unit=unit)["ax"].get_xlabel() == "scale (Mpc/h)"
+    rows = plot_betti_curves(result.diagrams, result.band, unit=unit)["axes"]
+    assert rows[max(rows)].get_xlabel() == "scale (Mpc/h)"
+    assert plot_landscape(result.diagrams, result.band, unit=unit)["ax"].get_xlabel() == "scale (Mpc/h)"
+    assert all(label.endswith("(Mpc/h)") for label in (plot_cloud(result)["ax"].get_xlabel(),
+                                                        plot_cloud(result)["ax"].get_ylabel()))
+    assert "Scales in Mpc/h" in " ".join(_texts(summary_figure(result)))
+    assert plot_diagram(result.diagrams)["ax"].get_xlabel() == "birth (DTM-Rips value)"
+
+
+def test_betti_axes_use_integer_ticks_and_show_one_against_two():
+    # H0 with 200 components and H1 with at most two loops: each row its own integer axis
+    births = np.zeros(200)
+    diagrams = make_diagrams([np.c_[births, np.linspace(0.01, 0.5, 200)], [[0.2, 0.9], [0.3, 0.6]]])
+    drawn = plot_betti_curves(diagrams)
+    drawn["ax"].figure.draw_without_rendering()
+    loops = drawn["axes"][1]
+    ticks = [t for t in loops.get_yticks() if loops.get_ylim()[0] <= t <= loops.get_ylim()[1]]
+    assert {1.0, 2.0} <= set(ticks) and all(float(t).is_integer() for t in ticks)
+    assert drawn["curves"][1].max() == 2
+
+
+def test_plus_minus_sign_and_no_plain_ascii_substitute(run):
+    for figure in (plot_landscape(run.diagrams, run.band)["ax"].figure, summary_figure(run, preset="single")):
+        texts = _texts(figure)
+        assert not any("+-" in t for t in texts)
+    assert any("\u00b1" in t for t in _texts(plot_landscape(run.diagrams, run.band)["ax"].figure))
+
+
+def test_numbered_features_carry_the_same_number_in_every_view(run):
+    from tdakit.plotting import feature_numbers
+
+    numbers = feature_numbers(run, dim=1)
+    assert numbers and list(numbers.values()) == list(range(1, len(numbers) + 1))
+    diagram = plot_diagram(run.diagrams, run.band, numbers=numbers)
+    barcode = plot_barcode(run.diagrams, run.band, dim=1, numbers=numbers)
+    cloud = plot_cloud(run, numbers=numbers)
+    shown = [sorted(int(label.get_text()) for label in drawn["labels"]) for drawn in (diagram, barcode, cloud)]
+    assert shown[0] == shown[1] == shown[2] == sorted(numbers.values())
+    for label in diagram["labels"]:
+        row = [r for r, n in numbers.items() if n == int(label.get_text())][0]
+        assert tuple(label.xy) == pytest.approx((run.table.birth[row], run.table.death[row]))
+    for row, artist in cloud["features"]:
+        assert len(artist.get_offsets()) == len(set(row.birth_vertices) | set(row.death_vertices))
+
+
+@pytest.mark.parametrize("preset", ["single", "double"])
+def test_a_real_run_lays_out_cleanly(run, preset):
+    from tdakit.plotting.summary import _run_figures
+
+    for name, figure in _run_figures(run, preset).items():
+        assert layout_problems(figure) == [], name

@@ -8,7 +8,10 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tdakit.core.geometry.metrics import Metric
-from tdakit.errors import InvalidDataError
+from tdakit.errors import InvalidDataError, InvalidParameterError
+
+# Powers |x|^p stay within float64 (about 1e-308 to 1e308) below these, with room for the sum over axes.
+_POWER_LIMIT = 300.0
 
 
 def check_points_for_metric(points: NDArray[np.float64], metric: Metric, name: str = "points") -> Metric:
@@ -18,6 +21,8 @@ def check_points_for_metric(points: NDArray[np.float64], metric: Metric, name: s
     """
     if metric.name == "periodic":
         return replace(metric, box=_check_in_box(points, metric, name))
+    elif metric.name == "minkowski" and metric.p not in (1.0, 2.0) and np.isfinite(metric.p):
+        _check_minkowski_range(points, metric.p)
     elif metric.name == "angular":
         _check_sky(points, name)
     elif metric.name == "cosine":
@@ -53,6 +58,14 @@ def _check_sky(points, name):
         raise InvalidDataError(
             f"metric='angular' needs exactly 2 columns (longitude, latitude in degrees); input '{name}' "
             f"has {points.shape[1]}.", parameter=name)
+    lon = points[:, 0]
+    far = np.flatnonzero(np.abs(lon) > 720)
+    if far.size:
+        row = int(far[0])
+        raise InvalidDataError(
+            f"Input '{name}' has longitude {float(lon[row])!r} at row {row}; longitudes must lie in [-720, 720] "
+            f"degrees (column 0 is the longitude; values far outside lose precision in the sine and cosine).",
+            parameter=name)
     lat = points[:, 1]
     bad = np.flatnonzero((lat < -90) | (lat > 90))
     if bad.size:
@@ -60,3 +73,34 @@ def _check_sky(points, name):
         raise InvalidDataError(
             f"Input '{name}' has latitude {float(lat[row])!r} at row {row}; latitudes must lie in [-90, 90] degrees "
             f"(column 1 is the latitude).", parameter=name)
+
+
+def _check_minkowski_range(points, p):
+    """Refuse an order p whose powers of these coordinates' differences leave float64.
+
+    Every Minkowski distance sums |x_i - y_i|^p over the axes: the largest difference (the widest span) must
+    not overflow, and the smallest non-zero one must not underflow, or close points would merge (distance 0)
+    and far ones become inf (coverage radius inf, infinite deaths).
+    """
+    spans = points.max(axis=0) - points.min(axis=0)
+    widest = float(spans.max())
+    gaps = np.diff(np.sort(points, axis=0), axis=0)
+    positive = gaps[gaps > 0]
+    if widest == 0 or positive.size == 0:
+        return
+    closest = float(positive.min())
+    room = _POWER_LIMIT - np.log10(points.shape[1])
+    limits = []
+    if widest > 1:
+        limits.append(room / np.log10(widest))
+    if closest < 1:
+        limits.append(room / -np.log10(closest))
+    largest = min(limits, default=np.inf)
+    if p > largest:
+        raise InvalidParameterError(
+            f"The 'p' parameter of load_cloud must keep the Minkowski powers in float64 range: with p={p:g}, "
+            f"differences of these coordinates (widest span {widest:.3g}, closest non-zero gap {closest:.3g}) "
+            f"raised to the power p would overflow to inf or underflow to 0, making far points infinitely "
+            f"distant and close points coincide. The largest order these coordinates allow is about "
+            f"{np.floor(largest):g}; for larger orders use metric='chebyshev' (the limit p -> inf, within a factor "
+            f"n_dims^(1/p) of the Minkowski distance: {points.shape[1] ** (1 / p):.4g} here).", parameter="p")

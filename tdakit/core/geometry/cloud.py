@@ -95,7 +95,8 @@ class Cloud:
             repeats = int(np.triu(matrix == 0.0, k=1).any(axis=0).sum())
             return Cloud(np.zeros((indices.size, 0)), self.metric, (), f"subset of {self.source}", matrix, repeats)
         points = self.points[indices]
-        return Cloud(points, self.metric, self.columns, f"subset of {self.source}", None, count_duplicates(points))
+        return Cloud(points, self.metric, self.columns, f"subset of {self.source}", None,
+                     count_duplicates(points, self.metric))
 
     def __repr__(self) -> str:
         return (f"Cloud(n_points={self.n_points}, n_dims={self.n_dims}, metric={self.metric.name!r}, "
@@ -124,6 +125,8 @@ def as_point_array(points: ArrayLike, name: str = "points", min_points: int = 2)
 
 
 def _to_numeric_array(points: ArrayLike, name: str) -> np.ndarray:
+    if isinstance(points, np.ma.MaskedArray):
+        points = _unmask(points, name)
     try:
         array = np.asarray(points)
     except ValueError as exc:  # numpy refuses ragged nested sequences
@@ -146,6 +149,19 @@ def _to_numeric_array(points: ArrayLike, name: str) -> np.ndarray:
     return array
 
 
+def _unmask(points: np.ma.MaskedArray, name: str) -> np.ndarray:
+    """The data of a masked array without masked entries; one with masked entries is refused (not guessed)."""
+    mask = np.ma.getmaskarray(points)
+    if mask.any():
+        where = np.argwhere(mask)[0]
+        place = f"row {where[0]} (column {where[1]})" if where.size == 2 else f"position {tuple(where.tolist())}"
+        raise InvalidDataError(
+            f"Input '{name}' is a masked array with {int(mask.sum())} masked entr{'y' if mask.sum() == 1 else 'ies'}, "
+            f"the first at {place}; tdakit does not guess what a masked coordinate was. Drop those rows "
+            f"(points[~points.mask.any(axis=1)]) or fill them (points.filled(value)) first.", parameter=name)
+    return np.ma.getdata(points)
+
+
 def _check_finite(array: NDArray[np.float64], name: str) -> None:
     bad = ~np.isfinite(array)
     if bad.any():
@@ -162,20 +178,49 @@ def check_extent(array: NDArray[np.float64], name: str) -> None:
     if extent > MAX_EXTENT:
         raise InvalidDataError(
             f"Input '{name}' spans {extent:.3g} along one axis; squared distances would overflow float64 "
-            f"(limit {MAX_EXTENT:g}). Rescale the coordinates (or pass standardize=True); tdakit does not "
-            f"rescale silently.", parameter=name)
+            f"(limit {MAX_EXTENT:g}). Rescale the coordinates (or pass standardize=True, for the coordinate "
+            f"metrics euclidean, manhattan, chebyshev and minkowski); tdakit does not rescale silently.",
+            parameter=name)
     if 0.0 < extent < MIN_EXTENT:
         raise InvalidDataError(
             f"Input '{name}' spans only {extent:.3g}; squared distances would underflow to zero "
-            f"(limit {MIN_EXTENT:g}). Rescale the coordinates (or pass standardize=True); tdakit does not "
-            f"rescale silently.", parameter=name)
+            f"(limit {MIN_EXTENT:g}). Rescale the coordinates (or pass standardize=True, for the coordinate "
+            f"metrics euclidean, manhattan, chebyshev and minkowski); tdakit does not rescale silently.",
+            parameter=name)
 
 
-def count_duplicates(array: NDArray[np.float64]) -> int:
-    """Number of rows equal to an earlier row (hash of the bytes; -0.0 counts as 0.0)."""
-    rows = np.ascontiguousarray(array + 0.0)
-    keys = rows.view(np.dtype((np.void, rows.dtype.itemsize * rows.shape[1]))).ravel()
-    return int(rows.shape[0] - np.unique(keys).size)
+# Unit vectors (sky positions, cosine directions) that agree to this many units of 1 are one point: the
+# trigonometry of the embedding rounds at ~1e-16 (longitude 0 against 360, the pole at any longitude), and
+# 1e-12 of a unit vector is 6e-11 degrees on the sky, far below any catalogue's precision (common practice).
+UNIT_VECTOR_TOLERANCE = 1e-12
+
+
+def _duplicate_keys(array: NDArray[np.float64], metric: Metric | None) -> NDArray[np.void]:
+    """One hashable key per row; equal keys are points at distance 0 under ``metric``."""
+    rows = np.asarray(array, dtype=np.float64)
+    if metric is not None and metric.name in ("angular", "cosine", "periodic"):
+        rows = metric.embed(rows)  # working coordinates: 0 and 360 degrees, or 0 and the box side, coincide
+        if metric.name != "periodic":
+            rows = np.round(rows / UNIT_VECTOR_TOLERANCE)
+    rows = np.ascontiguousarray(rows + 0.0)  # -0.0 counts as 0.0
+    return rows.view(np.dtype((np.void, rows.dtype.itemsize * rows.shape[1]))).ravel()
+
+
+def first_occurrences(array: NDArray[np.float64], metric: Metric | None = None) -> NDArray[np.intp]:
+    """Sorted indices of the rows that repeat no earlier row: one representative of every distinct point.
+
+    Rows are compared exactly, except for sky positions and cosine directions, compared as unit vectors
+    to ``UNIT_VECTOR_TOLERANCE``, and periodic coordinates, compared after wrapping the box side to 0.
+    """
+    if array.shape[0] == 0:
+        return np.zeros(0, dtype=np.intp)
+    _, first = np.unique(_duplicate_keys(array, metric), return_index=True)
+    return np.sort(first).astype(np.intp)
+
+
+def count_duplicates(array: NDArray[np.float64], metric: Metric | None = None) -> int:
+    """Number of rows equal to an earlier row (see :func:`first_occurrences` for what counts as equal)."""
+    return int(array.shape[0] - first_occurrences(array, metric).size)
 
 
 def make_cloud(
@@ -193,6 +238,11 @@ def make_cloud(
     if metric.name == "precomputed":
         from tdakit.core.geometry._checks_matrix import check_distance_matrix
 
+        if standardize is not False:
+            raise InvalidParameterError(
+                f"The 'standardize' parameter of load_cloud must be False with metric='precomputed': standardising "
+                f"rescales coordinate columns, and a distance matrix has none (rescale the distances yourself if "
+                f"meant). Got {standardize!r} instead.", parameter="standardize")
         matrix = check_distance_matrix(points, "points")
         n_dup = int(np.triu(matrix == 0.0, k=1).any(axis=0).sum())
         empty = np.zeros((matrix.shape[0], 0))
@@ -207,7 +257,7 @@ def make_cloud(
     from tdakit.core.geometry._checks_metric import check_points_for_metric
 
     metric = check_points_for_metric(array, metric)
-    cloud = Cloud(array, metric, cols, source, None, count_duplicates(array), shift, scale, source_checksum,
+    cloud = Cloud(array, metric, cols, source, None, count_duplicates(array, metric), shift, scale, source_checksum,
                   read_options, _check_unit(unit))
     return _finish(cloud)
 
@@ -227,14 +277,19 @@ def _standardize(array, metric):
         raise InvalidDataError(
             f"standardize=True rescales columns and is only meaningful for coordinate metrics "
             f"(euclidean, manhattan, chebyshev, minkowski); got metric={metric.name!r}.", parameter="standardize")
-    shift = array.mean(axis=0)
-    scale = array.std(axis=0)
-    flat = np.flatnonzero(scale == 0)
+    # Mean and spread of each column divided by its largest magnitude first: near 1e200 the squares in a
+    # plain std overflow to inf (every point became (0, 0)), near 1e-200 they underflow to 0.
+    size = np.abs(array).max(axis=0)
+    size[size == 0] = 1.0
+    unit = array / size
+    centre, spread = unit.mean(axis=0), unit.std(axis=0)
+    shift, scale = centre * size, spread * size
+    flat = np.flatnonzero((spread == 0) | (scale == 0))
     if flat.size:
         raise InvalidDataError(
             f"Column {int(flat[0])} is constant, so it cannot be standardised (its spread is 0). Drop it first.",
             parameter="standardize")
-    return (array - shift) / scale, shift, scale
+    return (unit - centre) / spread, shift, scale
 
 
 def _finish(cloud: Cloud) -> Cloud:

@@ -6,7 +6,7 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy.special import gammaln
 
-from tdakit._validation import check_float, check_int
+from tdakit._validation import check_bool, check_float, check_int, fail
 from tdakit.core.geometry import _geometry
 from tdakit.core.geometry.cloud import Cloud
 
@@ -14,6 +14,8 @@ __all__ = ["knn_radius", "knn_density", "densest_points"]
 
 
 def _check_k(cloud: Cloud, k: object, function: str) -> int:
+    if not isinstance(cloud, Cloud):
+        raise fail("cloud", function, "a Cloud from tdakit.load_cloud", cloud)
     return check_int(k, "k", function, low=1, high=cloud.n_points - 1, note="neighbours, fewer than the points")
 
 
@@ -65,6 +67,7 @@ def knn_density(cloud: Cloud, k: int = 15, *, calibrated: bool = False) -> NDArr
     .. [1] D. O. Loftsgaarden, C. P. Quesenberry, "A nonparametric estimate of a
        multivariate density function", Ann. Math. Statist. 36 (1965) 1049-1051.
     """
+    calibrated = check_bool(calibrated, "calibrated", "knn_density")
     radius = knn_radius(cloud, k)
     with np.errstate(divide="ignore"):
         if not calibrated:
@@ -86,6 +89,7 @@ def densest_points(cloud: Cloud, fraction: float, *, k: int = 15) -> NDArray[np.
     .. [1] G. Carlsson, T. Ishkhanov, V. de Silva, A. Zomorodian, "On the local
        behavior of spaces of natural images", Int. J. Comput. Vision 76 (2008) 1-12.
     """
+    _check_k(cloud, k, "densest_points")
     fraction = check_float(fraction, "fraction", "densest_points", low=0.0, high=1.0, low_open=True)
     radius = knn_radius(cloud, k)
     keep = max(1, int(np.ceil(fraction * cloud.n_points)))

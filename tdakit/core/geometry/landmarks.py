@@ -10,7 +10,7 @@ from numpy.typing import NDArray
 from tdakit._validation import check_choice, check_float, check_int, check_rng, fail
 from tdakit.core.geometry import _geometry
 from tdakit.core.geometry._maxmin import compiled_maxmin
-from tdakit.core.geometry.cloud import Cloud
+from tdakit.core.geometry.cloud import Cloud, first_occurrences
 from tdakit.core.geometry.density import densest_points, knn_radius
 from tdakit.errors import InvalidDataError, InvalidParameterError
 
@@ -83,8 +83,9 @@ def select_landmarks(
     method : {"maxmin", "random", "density", "core_maxmin"}, default="maxmin"
         ``"maxmin"``: sequential farthest point; each new landmark is the point
         farthest from those chosen, ties to the lowest index.
-        ``"random"``: uniform without replacement.
-        ``"density"``: without replacement, with probability proportional to
+        ``"random"``: uniform without replacement among the distinct points (one
+        representative of every repeated point, its first row, so no point is chosen twice).
+        ``"density"``: without replacement among the distinct points, with probability proportional to
         (kNN density)**``density_power`` (a tdakit design choice with no published
         source: ``density_power < 0`` evens out coverage, ``> 0`` favours dense regions).
         ``"core_maxmin"``: maxmin on the ``keep_fraction`` densest points, so that
@@ -139,7 +140,8 @@ def select_landmarks(
         if cover is not None:  # the compiled kernel already knows every point's nearest landmark
             return _wrap(indices, cover[0], _geometry.to_metric(cloud, cover[1]), method, params)
     elif method == "random":
-        indices = np.sort(generator.choice(cloud.n_points, size=n_landmarks, replace=False))
+        candidates = distinct_points(cloud)
+        indices = np.sort(candidates[generator.choice(candidates.size, size=n_landmarks, replace=False)])
     elif method == "density":
         indices = _density_sample(cloud, n_landmarks, density_power, density_neighbors, generator, params)
     else:
@@ -149,7 +151,12 @@ def select_landmarks(
 
 def landmarks_from_indices(cloud: Cloud, indices, *, method: str = "given", params: dict | None = None) -> Landmarks:
     """Wrap given cloud indices as :class:`Landmarks`, computing coverage and nearest landmarks."""
-    indices = np.asarray(indices)
+    if not isinstance(cloud, Cloud):
+        raise fail("cloud", "landmarks_from_indices", "a Cloud from tdakit.load_cloud", cloud)
+    try:
+        indices = np.asarray(indices)
+    except ValueError:  # ragged nested lists
+        raise fail("landmarks", "landmarks_from_indices", "a non-empty 1-D array of point indices", indices) from None
     if indices.ndim != 1 or indices.size == 0 or indices.dtype.kind not in "iu":
         raise fail("landmarks", "landmarks_from_indices", "a non-empty 1-D array of point indices", indices)
     if indices.min() < 0 or indices.max() >= cloud.n_points:
@@ -171,6 +178,15 @@ def _wrap(indices, nearest, dist, method, params) -> Landmarks:
 
 def _seed_of(rng) -> int | None:
     return int(rng) if isinstance(rng, (int, np.integer)) and not isinstance(rng, bool) else None
+
+
+def distinct_points(cloud: Cloud) -> NDArray[np.intp]:
+    """Indices of one representative (the first row) of every distinct point of the cloud."""
+    if cloud.n_duplicates == 0:
+        return np.arange(cloud.n_points, dtype=np.intp)
+    if cloud.distance_matrix is not None:
+        return np.flatnonzero(~np.triu(cloud.distance_matrix == 0.0, k=1).any(axis=0)).astype(np.intp)
+    return first_occurrences(cloud.points, cloud.metric)
 
 
 def _check_distinct(cloud: Cloud, n_landmarks: int) -> None:
@@ -232,9 +248,12 @@ def _density_sample(cloud, n_landmarks, power, neighbors, generator, params) -> 
     params.update(density_power=power, density_neighbors=neighbors)
     # Probability proportional to density**power = radius**(-power); weighted sampling without
     # replacement by exponential races (Efraimidis & Spirakis, Inf. Process. Lett. 97 (2006) 181-185).
-    log_weight = -power * np.log(_positive_radius(cloud, neighbors))
-    keys = np.log(generator.exponential(size=cloud.n_points)) - (log_weight - log_weight.max())
-    return np.sort(np.argpartition(keys, n_landmarks - 1)[:n_landmarks])
+    # Only one copy of a repeated point may be drawn: the race runs among the distinct points, each
+    # weighted by its density in the whole cloud (copies count as mass there).
+    candidates = distinct_points(cloud)
+    log_weight = -power * np.log(_positive_radius(cloud, neighbors))[candidates]
+    keys = np.log(generator.exponential(size=candidates.size)) - (log_weight - log_weight.max())
+    return np.sort(candidates[np.argpartition(keys, n_landmarks - 1)[:n_landmarks]])
 
 
 def _core_maxmin(cloud, n_landmarks, keep_fraction, neighbors, start, generator, params) -> NDArray[np.intp]:

@@ -139,6 +139,9 @@ def _replicate_diagrams(sample: Cloud, spec: dict, rng) -> Diagrams:
     landmarks = None
     if spec["n_landmarks"] is not None:
         count = min(spec["n_landmarks"], sample.n_distinct)
+        if spec["landmark_method"] == "core_maxmin":  # maxmin on the kept share of this sample only
+            kept = int(np.ceil(spec["landmark_options"].get("keep_fraction", 0.9) * sample.n_points))
+            count = max(1, min(count, kept))
         landmarks = select_landmarks(sample, count, method=spec["landmark_method"], rng=rng, **spec["landmark_options"])
     return compute_diagrams(sample, landmarks=landmarks, filtration=spec["filtration"], max_dim=spec["max_dim"],
                             rng=rng, **spec["diagram_options"])
@@ -285,6 +288,7 @@ def density_method(cloud, opts, run, bandwidth, resolution) -> Band:
     if not width > 0:
         raise fail("bandwidth", _FN, "a positive kernel width (the points have no spread, so Scott's rule gives 0; "
                    "pass bandwidth= in the data's units)", width)
+    _check_bandwidth_reach(cloud, width)
     if resolution is not None:
         resolution = check_int(resolution, "resolution", _FN, low=8, high=4096)
     _check_grid_memory(resolution or kde.DEFAULT_RESOLUTION[cloud.n_dims], cloud.n_dims)
@@ -301,6 +305,23 @@ def density_method(cloud, opts, run, bandwidth, resolution) -> Band:
                 "none: the density is estimated from every point", stats, opts["seed"],
                 {"bandwidth": width, "grid_shape": grid.shape, "n_boot": opts["n_boot"]},
                 {"density": density, "grid_lower": grid.lower, "grid_cell": grid.cell})
+
+
+def _check_bandwidth_reach(cloud, width: float) -> None:
+    """Refuse a kernel wider than the cloud (or than half the periodic box).
+
+    Such a kernel smooths every point into one blob: the estimate has a single mode whatever the data,
+    the points fall into a few grid cells, so the bootstrap sees no variation and the radius came out 0
+    (a band that calls everything); in a periodic box the kernel also wraps onto itself.
+    """
+    if cloud.metric.name == "periodic":
+        reach, what = 0.5 * min(cloud.metric.box), "half the smallest side of the periodic box"
+    else:
+        reach, what = float((cloud.points.max(axis=0) - cloud.points.min(axis=0)).max()), "the cloud's widest span"
+    if width > reach:
+        raise fail("bandwidth", _FN, f"a kernel width no wider than {what}, {reach:.4g} (a kernel wider than that "
+                   "smooths the cloud into one blob: one mode whatever the data, and a bootstrap that sees no "
+                   "variation, so the band's radius would be 0); leave it None for Scott's rule", width)
 
 
 # Measured peak growth of binning, smoothing and cubical persistence up to H2:

@@ -19,12 +19,17 @@ from tdakit.core.topology.preflight import (
     check_budget,
     check_dense_matrix,
     estimate_flag_complex,
+    estimate_from_samples,
+    settings_that_fit,
 )
 
 # Above this many edges, collapsing just to re-check the budget takes longer than a user
 # expects from a refusal (measured: 0.5 M edges ~4 s, 4.5 M edges ~100 s, gudhi 3.13).
 COLLAPSE_RECHECK_EDGES = 1_000_000
 _ADVICE = "Lower 'max_scale', 'max_dim' or the number of landmarks."
+# From this many vertices on, the complex is estimated from sampled rows before the n x n matrix exists
+# (3,000 vertices: a 72 MB matrix; 20,000 with max_dim 2 had grown the process to 9.6 GB before refusing).
+SAMPLED_PREFLIGHT_VERTICES = 3000
 
 
 def flag_tree(matrix: NDArray[np.float64], cap: float, max_dim: int, *, collapse: bool, budget: float, what: str):
@@ -32,13 +37,8 @@ def flag_tree(matrix: NDArray[np.float64], cap: float, max_dim: int, *, collapse
     import gudhi
 
     estimate = estimate_flag_complex(matrix, cap, max_dim + 1, budget=budget)
-    graph = SizeEstimate(estimate.counts[:2], estimate.errors[:2])
-    check_budget(graph, budget, what=f"{what} graph", advice=_ADVICE)
-    over = estimate.bytes > budget
-    if over and not (collapse and max_dim >= 1 and graph.counts[1] <= COLLAPSE_RECHECK_EDGES):
-        check_budget(estimate, budget, what=what, advice=_ADVICE + " Edge collapse is applied before expansion "
-                     f"and often shrinks the complex a hundredfold, but with over {COLLAPSE_RECHECK_EDGES:,} edges "
-                     "tdakit does not collapse just to find out.")
+    suggest = _suggester(lambda rows, cols: matrix[np.ix_(rows, cols)], matrix.shape[0], cap, max_dim, budget)
+    over = _refuse_flag(estimate, budget, collapse=collapse, max_dim=max_dim, what=what, suggest=suggest)
     # inf marks a missing edge: never insert it, even when the filtration has no cap
     tree = gudhi.SimplexTree.create_from_array(matrix, max_filtration=min(cap, np.finfo(np.float64).max))
     if collapse and max_dim >= 1:
@@ -49,6 +49,42 @@ def flag_tree(matrix: NDArray[np.float64], cap: float, max_dim: int, *, collapse
                          what=f"{what} after edge collapse", advice=_ADVICE)
     tree.expansion(max_dim + 1)
     return tree
+
+
+def _suggester(values, n, cap, max_dim, budget):
+    return lambda: settings_that_fit(values, n, cap, max_dim + 1, budget)
+
+
+def _refuse_flag(estimate, budget, *, collapse, max_dim, what, suggest) -> bool:
+    """Refuse a flag complex whose graph, or whose whole complex when collapse cannot be re-checked, is over budget.
+
+    Returns whether the complex is over budget (to be re-checked after edge collapse).
+    """
+    graph = SizeEstimate(estimate.counts[:2], estimate.errors[:2])
+    check_budget(graph, budget, what=f"{what} graph", advice=_ADVICE, suggest=suggest)
+    over = estimate.bytes > budget
+    if over and not (collapse and max_dim >= 1 and graph.counts[1] <= COLLAPSE_RECHECK_EDGES):
+        check_budget(estimate, budget, what=what, advice=_ADVICE + " Edge collapse is applied before expansion "
+                     f"and often shrinks the complex a hundredfold, but with over {COLLAPSE_RECHECK_EDGES:,} edges "
+                     "tdakit does not collapse just to find out.", suggest=suggest)
+    return over
+
+
+def sampled_preflight(values, n, cap, max_dim, *, collapse, budget, what) -> None:
+    """Refuse, before the n x n matrix is built, a complex whose estimate from sampled rows is over budget.
+
+    Runs from ``SAMPLED_PREFLIGHT_VERTICES`` vertices on (its advice then covers the complex and the matrix),
+    then refuses a matrix over budget; the exact pre-flight on the matrix follows.
+    """
+    if n < SAMPLED_PREFLIGHT_VERTICES:
+        check_dense_matrix(n, budget)
+        return
+    estimate = estimate_from_samples(values, n, cap, max_dim + 1)
+    # refuse on the lower end of the sampled estimate (2 standard errors): the exact check follows anyway
+    low = SizeEstimate(tuple(max(c - 2 * e, 0.0) for c, e in zip(estimate.counts, estimate.errors)), estimate.errors)
+    _refuse_flag(low, budget, collapse=collapse, max_dim=max_dim, what=what,
+                 suggest=_suggester(values, n, cap, max_dim, budget))
+    check_dense_matrix(n, budget)
 
 
 def _collapse(tree) -> None:
@@ -83,6 +119,8 @@ def _landmark_matrix(cloud: Cloud, landmarks, budget) -> NDArray[np.float64]:
 
 
 def rips_tree(cloud: Cloud, landmarks, max_dim, cap, *, collapse, budget):
+    sampled_preflight(lambda rows, cols: _geometry.pairwise(cloud, landmarks[rows], landmarks[cols]), landmarks.size,
+                      cap, max_dim, collapse=collapse, budget=budget, what="Rips complex")
     matrix = _landmark_matrix(cloud, landmarks, budget)
     return flag_tree(matrix, cap, max_dim, collapse=collapse, budget=budget, what="Rips complex"), False
 
@@ -118,14 +156,30 @@ def weighted_rips_matrix(distances: NDArray[np.float64], weights: NDArray[np.flo
     return matrix
 
 
+def _weighted_block(distances, row_weights, col_weights, power, rows, cols):
+    """``weighted_rips_matrix`` for a block of rows and columns (vertex values where a row meets its column)."""
+    larger = 2 * np.maximum(row_weights[:, None], col_weights[None, :])
+    block = distances + row_weights[:, None] + col_weights[None, :] if power == 1 else distances.copy()
+    block = np.maximum(block, larger)
+    same = rows[:, None] == cols[None, :]
+    block[same] = (2 * np.broadcast_to(row_weights[:, None], block.shape))[same]
+    return block
+
+
 def dtm_tree(cloud: Cloud, landmarks, max_dim, cap, *, k, power, collapse, budget):
     weights = dtm_weights(cloud, landmarks, k)
+
+    def values(rows, cols):
+        distances = _geometry.pairwise(cloud, landmarks[rows], landmarks[cols])
+        return _weighted_block(distances, weights[rows], weights[cols], power, rows, cols)
+
+    sampled_preflight(values, landmarks.size, cap, max_dim, collapse=collapse, budget=budget, what="DTM-Rips complex")
     matrix = weighted_rips_matrix(_landmark_matrix(cloud, landmarks, budget), weights, power)
     return flag_tree(matrix, cap, max_dim, collapse=collapse, budget=budget, what="DTM-Rips complex"), False
 
 
 def lazy_witness_tree(cloud: Cloud, landmarks, max_dim, cap, *, nu, collapse, budget):
-    check_dense_matrix(landmarks.size, budget)
+    check_dense_matrix(landmarks.size, budget, needed=_witness.lazy_witness_bytes(cloud.n_points, landmarks.size))
     matrix = _witness.lazy_witness_edges(cloud, landmarks, nu, cap)
     return flag_tree(matrix, cap, max_dim, collapse=collapse, budget=budget, what="lazy witness complex"), False
 

@@ -44,9 +44,24 @@ def lazy_witness_edges(cloud: Cloud, landmarks: NDArray[np.intp], nu: int, cap: 
         for start in range(0, cloud.n_points, step):
             rows = np.arange(start, min(start + step, cloud.n_points))
             _scatter_block(edges, _relative_distances(cloud, rows, landmarks, nu), cap)
-    edges = np.maximum(np.minimum(edges, edges.T), 0.0)
+    _mirror_upper(edges)
+    np.maximum(edges, 0.0, out=edges)
     np.fill_diagonal(edges, 0.0)
     return edges
+
+
+def _mirror_upper(edges: NDArray[np.float64]) -> None:
+    """Edges = min(edges, edges.T) in place, a block of rows at a time (no second m x m array).
+
+    numpy copies the overlapping diagonal block before writing (ufuncs resolve memory overlap), so
+    the temporary is one block, not the matrix.
+    """
+    m = edges.shape[0]
+    step = _geometry.block_rows(m, m)
+    for start in range(0, m, step):
+        stop = min(start + step, m)
+        block = edges[start:stop, :]
+        np.minimum(block, edges[:, start:stop].T, out=block)
 
 
 def _compiled_edges(cloud, landmarks, nu, cap):
@@ -61,19 +76,44 @@ def _compiled_edges(cloud, landmarks, nu, cap):
         from tdakit.core.topology._witness_kernels import lazy_edges
     except ImportError:
         return None
-    from tdakit.core.geometry._maxmin import distance_mode, worker_threads
+    from tdakit.core.geometry._maxmin import distance_mode
 
     mode, p, box = distance_mode(cloud)
     work = _geometry.working_points(cloud)
     marks = np.ascontiguousarray(work[landmarks])
     # One m x m matrix per thread: threads only while those stay small.
-    threads = worker_threads(cloud.n_points * landmarks.size) if landmarks.size <= 2000 else 1
+    threads = lazy_threads(cloud.n_points, landmarks.size)
     edges = np.full((threads, landmarks.size, landmarks.size), np.inf)
     bounds = np.linspace(0, cloud.n_points, threads + 1).astype(np.int64)
     with ThreadPoolExecutor(max_workers=threads) as pool:
         list(pool.map(lambda t: lazy_edges(work, marks, bounds[t], bounds[t + 1], nu, float(cap), mode, p, box,
                                            edges[t]), range(threads)))
+    if threads == 1:
+        return edges[0]  # a view: no copy of the m x m matrix
     return edges.min(axis=0)
+
+
+def lazy_threads(n_points: int, n_landmarks: int) -> int:
+    """Threads of the compiled lazy witness pass: one m x m matrix each, so threads only up to 2,000 landmarks."""
+    from tdakit.core.geometry._maxmin import worker_threads
+
+    return worker_threads(n_points * n_landmarks) if n_landmarks <= 2000 else 1
+
+
+def lazy_witness_bytes(n_points: int, n_landmarks: int) -> float:
+    """Peak bytes of the lazy witness edge matrix and its flag complex's dense input (before the complex).
+
+    Counted from the code: one float64 m x m matrix per thread of the compiled pass (plus their minimum
+    when there are several), one block for mirroring the upper triangle (or the numpy route's blocks of
+    witnesses), and one more m x m matrix when edge collapse is re-checked (``flag_tree``). Measured
+    (tracemalloc peak of ``lazy_witness_edges``, 6,000 witnesses, cap 0.3): 24.2 bytes per cell at 1,000
+    landmarks (2 threads: two matrices and their minimum), 16.0 at 2,500 (1 thread: the matrix and the
+    mirrored block, there the whole matrix). Before the in-place assembly the single-thread route held
+    four m x m matrices (32 bytes per cell) while the pre-flight counted 10.
+    """
+    threads = lazy_threads(n_points, n_landmarks)
+    matrices = threads + (1 if threads > 1 else 0) + 1
+    return 8.0 * matrices * float(n_landmarks) ** 2 + _geometry.BLOCK_BYTES
 
 
 def _scatter_block(edges, relative, cap):
@@ -95,6 +135,22 @@ def _scatter_block(edges, relative, cap):
         keep = pair_values <= cap
         a, b = order[:, first][keep], order[:, second][keep]
         np.minimum.at(edges, (np.minimum(a, b), np.maximum(a, b)), pair_values[keep])
+
+
+def table_lengths(cloud: Cloud, landmarks: NDArray[np.intp], cap: float, simplex_size: int,
+                  sample: int = 2000) -> tuple[NDArray[np.float64], float]:
+    """Lengths of a sample of witnesses' rows in :func:`nearest_landmark_table`, and the weight of each.
+
+    The rows are those of up to ``sample`` witnesses drawn without replacement (seed 0); each stands for
+    ``n_points / sample`` witnesses. Memory: one (sample, n_landmarks) block.
+    """
+    m = landmarks.size
+    rank = min(simplex_size, m - 1)
+    rng = np.random.default_rng(0)
+    rows = np.sort(rng.choice(cloud.n_points, size=min(sample, cloud.n_points), replace=False))
+    squared = _geometry.pairwise(cloud, rows, landmarks) ** 2
+    limit = np.partition(squared, rank, axis=1)[:, rank] + cap * cap
+    return (squared <= limit[:, None]).sum(axis=1).astype(np.float64), cloud.n_points / rows.size
 
 
 def nearest_landmark_table(

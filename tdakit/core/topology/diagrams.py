@@ -7,7 +7,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import NDArray
 
-from tdakit._validation import check_int, fail
+from tdakit._validation import check_int, check_real
 
 __all__ = ["Diagrams"]
 
@@ -90,8 +90,7 @@ class Diagrams:
 
     def betti_at(self, scale: float) -> tuple[int, ...]:
         """Betti numbers of the complex at filtration value ``scale``."""
-        if not isinstance(scale, (int, float, np.floating)) or np.isnan(scale):
-            raise fail("scale", "Diagrams.betti_at", "a real number", scale)
+        scale = check_real(scale, "scale", "Diagrams.betti_at")
         return tuple(int(((p[:, 0] <= scale) & (p[:, 1] > scale)).sum()) for p in self.pairs)
 
     def summary(self) -> str:

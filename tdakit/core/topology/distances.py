@@ -15,7 +15,8 @@ from scipy.sparse.csgraph import maximum_bipartite_matching, min_weight_full_bip
 from scipy.spatial import cKDTree
 
 from tdakit._validation import check_choice, check_float, fail
-from tdakit.errors import InvalidDataError
+from tdakit.core.topology.preflight import default_memory_budget
+from tdakit.errors import InvalidDataError, MemoryBudgetError
 
 __all__ = ["diagram_distance", "as_diagram"]
 _FN = "diagram_distance"
@@ -28,6 +29,10 @@ DENSE_CELL_LIMIT = 2.6e8  # about 16,000 x 16,000: ~2 GiB of cost matrix and pla
 # rather than scipy's sparse matching, which can cycle forever on tied inputs (scipy gh-17269): 3-4x slower on
 # generic diagrams (13 s against 4 s at 5,000 + 5,000 points), 2x faster on tied H0 diagrams (measured).
 TERMINATING_CELL_LIMIT = 2.5e7
+# The dense transport problem holds the cost matrix, one temporary, POT's copy and its plan (counted from the
+# code: about 4 float64 per cell); refused beyond the memory budget.
+TRANSPORT_BYTES_PER_CELL = 32
+BOTTLENECK_PAIR_LIMIT = 50_000_000
 
 
 def as_diagram(points: ArrayLike, name: str = "a", function: str = _FN) -> NDArray[np.float64]:
@@ -95,6 +100,19 @@ def diagram_distance(
     order = check_float(order, "order", _FN, low=1.0)
     ground = check_choice(ground, "ground", _FN, ("euclidean", "sup"))
     a, b = as_diagram(a, "a"), as_diagram(b, "b")
+    # Both distances are homogeneous (d(s a, s b) = s d(a, b)): measured in units of a power of two above the
+    # largest finite value (an exact division), persistences such as 1e308 - (-1e308) stay finite.
+    unit = _unit_of(a, b)
+    return unit * _distance(a / unit, b / unit, kind, order, ground)
+
+
+def _unit_of(a, b) -> float:
+    values = np.abs(np.concatenate((a.ravel(), b.ravel())))
+    values = values[np.isfinite(values)]
+    return _power_of_two_above(float(values.max())) if values.size and values.max() > 0 else 1.0
+
+
+def _distance(a, b, kind, order, ground) -> float:
     ess_a, ess_b = np.sort(a[np.isinf(a[:, 1]), 0]), np.sort(b[np.isinf(b[:, 1]), 0])
     if ess_a.size != ess_b.size:
         return float("inf")
@@ -102,8 +120,7 @@ def diagram_distance(
     gap = np.abs(ess_a - ess_b)
     if kind == "bottleneck":
         return float(max(gap.max(initial=0.0), _bottleneck(fin_a, fin_b)))
-    total = float((gap**order).sum()) + _wasserstein_power(fin_a, fin_b, order, ground)
-    return total ** (1.0 / order)
+    return _wasserstein(fin_a, fin_b, gap, order, ground)
 
 
 # -- bottleneck ----------------------------------------------------------------------------
@@ -115,8 +132,16 @@ def _edges(points, others, radius):
     """Pairs (i, j) with sup-distance(points[i], others[j]) <= radius, and their exact distances."""
     if points.shape[0] == 0 or others.shape[0] == 0:
         return np.zeros(0, np.intp), np.zeros(0, np.intp), np.zeros(0)
-    found = cKDTree(points).sparse_distance_matrix(cKDTree(others), radius * (1 + 1e-9) + 1e-300, p=np.inf,
-                                                   output_type="ndarray")
+    near, far = cKDTree(points), cKDTree(others)
+    reach = radius * (1 + 1e-9) + 1e-300
+    count = int(near.count_neighbors(far, reach, p=np.inf))  # counted before listed: 24 bytes per listed pair
+    if count > BOTTLENECK_PAIR_LIMIT:
+        raise MemoryBudgetError(
+            f"The bottleneck distance between diagrams of {points.shape[0]} and {others.shape[0]} points would list "
+            f"{count:.3g} candidate pairs within {radius:.4g} of each other (limit {BOTTLENECK_PAIR_LIMIT:.3g}, "
+            f"{24 * BOTTLENECK_PAIR_LIMIT / 2**30:.3g} GiB): the diagrams hold many tied points. Compare fewer "
+            f"points, for example the classes with the largest persistence.", parameter="a")
+    found = near.sparse_distance_matrix(far, reach, p=np.inf, output_type="ndarray")
     rows, cols = found["i"].astype(np.intp), found["j"].astype(np.intp)
     dist = _sup(points[rows], others[cols])
     keep = dist <= radius
@@ -196,15 +221,66 @@ def _first_true(predicate, n: int) -> int:
 
 
 # -- Wasserstein ---------------------------------------------------------------------------
+def _power_of_two_above(value: float) -> float:
+    """The smallest power of two at least ``value`` (> 0; at most 2^1023): dividing by it is exact."""
+    return float(np.ldexp(1.0, int(min(np.ceil(np.log2(value)), 1023))))
+
+
+def _wasserstein(a, b, gap, order, ground) -> float:
+    """W_q of the finite parts ``a``, ``b`` and the essential births' gaps, scaled so that no power leaves float64.
+
+    W_q is homogeneous (W_q(s a, s b) = s W_q(a, b)); the diagrams come divided by a power of two above
+    their largest finite value (``diagram_distance``) and are divided here by the largest cost-relevant
+    length (a point's distance to the diagonal, an essential gap), before raising to the power q; the
+    result is scaled back. Without this, order 2 on values near 1e300 gave inf, near 1e-300 gave 0, and
+    order 1000 on values near 10 gave inf. When the scaled optimum is so small that its terms may have
+    underflowed, it is recomputed in units of the bottleneck distance B (B <= W_q <= N^(1/q) B, so the
+    optimal terms are then near 1).
+    """
+    divisor = 2.0 if ground == "sup" else np.sqrt(2.0)
+    reach = max(gap.max(initial=0.0), ((a[:, 1] - a[:, 0]) / divisor).max(initial=0.0),
+                ((b[:, 1] - b[:, 0]) / divisor).max(initial=0.0))
+    if reach == 0:
+        return 0.0
+    value = _scaled_wasserstein(a, b, gap, order, ground, _power_of_two_above(reach))
+    if value < reach * 10.0 ** (-250.0 / order):
+        floor = float(max(gap.max(initial=0.0), _bottleneck(a, b)))
+        if 0 < floor < reach:
+            value = _scaled_wasserstein(a, b, gap, order, ground, _power_of_two_above(floor))
+    return float(value)
+
+
+def _scaled_wasserstein(a, b, gap, order, ground, scale) -> float:
+    """W_q computed on the diagrams divided by ``scale``, multiplied back by ``scale``."""
+    cap = _cost_cap(len(a) + len(b) + gap.size)
+    with np.errstate(over="ignore", under="ignore"):
+        total = float(np.minimum((gap / scale) ** order, cap).sum())
+        total += _wasserstein_power(a / scale, b / scale, order, ground)
+    return total ** (1.0 / order) * scale
+
+
+def _cost_cap(count: int) -> float:
+    """Largest value a single powered cost may take so that sums of ``count`` of them stay finite.
+
+    A cost this large is never part of an optimum once the diagrams are scaled (the optimal terms are at
+    most about the number of points), so clipping changes no optimal matching.
+    """
+    return 1e300 / (count + 1)
+
+
 def _wasserstein_power(a, b, order, ground) -> float:
-    """Sum of matched costs (already raised to ``order``) between finite diagrams."""
+    """Sum of matched costs (already raised to ``order``) between finite diagrams (scaled: see ``_wasserstein``)."""
     scale = 2.0 if ground == "sup" else np.sqrt(2.0)
+    cap = _cost_cap(len(a) + len(b))
     diag_a, diag_b = (a[:, 1] - a[:, 0]) / scale, (b[:, 1] - b[:, 0]) / scale
-    cost_a, cost_b = diag_a**order, diag_b**order
+    cost_a, cost_b = np.minimum(diag_a**order, cap), np.minimum(diag_b**order, cap)
     n, m = len(a), len(b)
     if n == 0 or m == 0:
         return float(cost_a.sum() + cost_b.sum())
-    rows, cols, cost = _useful_pairs(a, b, cost_a, cost_b, order, ground)
+    pairs = _useful_pairs(a, b, cost_a, cost_b, order, ground)
+    if pairs is None:  # too many candidate pairs to list (tied diagrams): the dense problem, or a refusal
+        return _dense_transport(a, b, cost_a, cost_b, order, ground)
+    rows, cols, cost = pairs
     if rows.size == 0:
         return float(cost_a.sum() + cost_b.sum())
     if rows.size > SPARSE_PAIR_LIMIT:
@@ -254,28 +330,47 @@ def _dense_transport(a, b, cost_a, cost_b, order, ground) -> float:
     import ot
 
     n, m = len(a), len(b)
-    if (n + 1) * (m + 1) > DENSE_CELL_LIMIT:
-        raise InvalidDataError(
-            f"Diagrams of {n} and {m} points, most of them far from the diagonal, need a dense "
-            f"{n + 1} x {m + 1} transport problem (limit {DENSE_CELL_LIMIT:.3g} cells). Compare fewer points, "
-            f"for example the classes with the largest persistence.", parameter="a")
-    diff = np.abs(a[:, None, :] - b[None, :, :])
+    cells = float(n + 1) * (m + 1)
+    budget = default_memory_budget()
+    if cells > DENSE_CELL_LIMIT or cells * TRANSPORT_BYTES_PER_CELL > budget:
+        raise MemoryBudgetError(
+            f"Diagrams of {n} and {m} points, most of them close to each other or far from the diagonal, need a "
+            f"dense {n + 1} x {m + 1} transport problem (about {cells * TRANSPORT_BYTES_PER_CELL / 2**30:.3g} GiB; "
+            f"limits {DENSE_CELL_LIMIT:.3g} cells and the memory budget of {budget / 2**30:.3g} GiB). Compare fewer "
+            f"points, for example the classes with the largest persistence.", parameter="a")
     costs = np.zeros((n + 1, m + 1))
-    costs[:n, :m] = (diff.max(axis=2) if ground == "sup" else np.hypot(diff[..., 0], diff[..., 1])) ** order
+    block = costs[:n, :m]
+    np.abs(a[:, None, 0] - b[None, :, 0], out=block)  # one n x m temporary at a time, not an n x m x 2 array
+    other = np.abs(a[:, None, 1] - b[None, :, 1])
+    if ground == "sup":
+        np.maximum(block, other, out=block)
+    else:
+        np.hypot(block, other, out=block)
+    del other
+    np.power(block, order, out=block)
+    # a pair dearer than sending both points to the diagonal is never needed: the diagonal node carries it
+    np.minimum(costs[:n, :m], cost_a[:, None] + cost_b[None, :], out=costs[:n, :m])
     costs[:n, m], costs[n, :m] = cost_a, cost_b
     mass_a = np.concatenate((np.ones(n), [m]))
     mass_b = np.concatenate((np.ones(m), [n]))
     return float(ot.emd2(mass_a, mass_b, costs, numItermax=10**9))
 
 
-def _useful_pairs(a, b, cost_a, cost_b, order, ground):
-    """Pairs (i, j) whose matching cost is below sending both to the diagonal, with that cost."""
+def _useful_pairs(a, b, cost_a, cost_b, order, ground, limit=SPARSE_PAIR_LIMIT):
+    """Pairs (i, j) whose matching cost is below sending both to the diagonal, with that cost.
+
+    None when more than ``limit`` candidate pairs would be listed (they are counted first).
+    """
     radius = (cost_a + cost_b.max()) ** (1.0 / order)  # sup-distance bound for any useful partner
-    lists = cKDTree(b).query_ball_point(a, radius * (1 + 1e-9), p=np.inf)
+    tree = cKDTree(b)
+    # Count before listing: tied diagrams (12,000 x 17,000 points) had built 2e8 pairs as Python lists (15 GB).
+    if int(tree.query_ball_point(a, radius * (1 + 1e-9), p=np.inf, return_length=True).sum()) > limit:
+        return None
+    lists = tree.query_ball_point(a, radius * (1 + 1e-9), p=np.inf)
     rows = np.repeat(np.arange(len(a)), [len(x) for x in lists])
     cols = np.fromiter((j for x in lists for j in x), dtype=np.intp, count=rows.size)
     diff = np.abs(a[rows] - b[cols])
     dist = diff.max(axis=1) if ground == "sup" else np.hypot(diff[:, 0], diff[:, 1])
-    cost = dist**order
+    cost = np.minimum(dist**order, _cost_cap(len(a) + len(b)))
     keep = cost < cost_a[rows] + cost_b[cols]
     return rows[keep], cols[keep], cost[keep]

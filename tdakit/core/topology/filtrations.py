@@ -14,7 +14,8 @@ from tdakit.core.topology.diagrams import Diagrams
 from tdakit.core.topology.preflight import default_memory_budget
 from tdakit.errors import FewWitnessesWarning, MemoryBudgetError, TdakitError
 
-__all__ = ["compute_diagrams", "FILTRATIONS", "WITNESS_KINDS", "landmark_constant", "stability_constant",
+__all__ = ["compute_diagrams", "check_filtration_for", "FILTRATIONS", "WITNESS_KINDS", "landmark_constant",
+           "stability_constant",
            "witness_edge_values", "default_dtm_neighbors"]
 
 FILTRATIONS = ("alpha", "dtm", "rips", "witness")
@@ -24,6 +25,10 @@ _PRIMES = (2, 3, 5, 7, 11, 13, 17, 19, 23, 29, 31, 37, 41, 43, 47)
 # Lazy witness edges cost one evaluation per (witness, landmark pair) under the cap.
 MAX_WITNESS_WORK = 3e9
 ALPHA_MAX_DIMS = 5
+# gudhi's strong witness complex: seconds per (witness, subset of its landmark list), measured (see
+# strong_witness_seconds); refused above a few minutes, as the other complexes are refused up front.
+STRONG_SECONDS_PER_SUBSET = 6e-7
+MAX_STRONG_WITNESS_SECONDS = 120.0
 
 
 def stability_constant(filtration: str) -> float | None:
@@ -220,15 +225,27 @@ def _as_landmarks(cloud, landmarks, filtration) -> Landmarks:
         raise fail("landmarks", _FN, f"a Landmarks object or indices into the cloud ({exc})", landmarks) from None
 
 
+def check_filtration_for(cloud, filtration: str, function: str = _FN) -> None:
+    """Refuse a filtration that cannot be built on this cloud's metric or dimension (before any work).
+
+    Alpha complexes are Euclidean only (a periodic box, the sky or a cosine metric have no Delaunay
+    triangulation in gudhi) and at most ``ALPHA_MAX_DIMS`` coordinates; Rips, DTM and witness complexes
+    use tdakit's distances, so they work under every metric.
+    """
+    if filtration != "alpha":
+        return
+    if cloud.metric.name != "euclidean":
+        raise fail("filtration", function, f"not 'alpha' for metric {cloud.metric.name!r} (alpha complexes are "
+                   "Euclidean only; use 'rips', 'dtm' or 'witness', which use this metric's distances)", filtration)
+    if cloud.n_dims > ALPHA_MAX_DIMS:
+        raise fail("filtration", function, f"not 'alpha' for {cloud.n_dims}-dimensional points (at most "
+                   f"{ALPHA_MAX_DIMS}; the Delaunay triangulation explodes above); use 'rips' or 'witness'",
+                   filtration)
+
+
 def _check_geometry(cloud, opts):
     marks, kind = opts["landmarks"], opts["filtration"]
-    if kind == "alpha":
-        if cloud.metric.name != "euclidean":
-            raise fail("filtration", _FN, f"not 'alpha' for metric {cloud.metric.name!r} (alpha complexes are "
-                       "Euclidean only; use 'rips' or 'witness')", kind)
-        if cloud.n_dims > ALPHA_MAX_DIMS:
-            raise fail("filtration", _FN, f"not 'alpha' for {cloud.n_dims}-dimensional points (at most "
-                       f"{ALPHA_MAX_DIMS}; the Delaunay triangulation explodes above); use 'rips' or 'witness'", kind)
+    check_filtration_for(cloud, kind)
     if kind == "witness" and marks.witnesses_per_landmark < 10:
         warnings.warn(f"Only {marks.witnesses_per_landmark:.3g} witnesses per landmark; witness complexes are "
                       "unreliable below 10 (published examples use 20 to 300).", FewWitnessesWarning, stacklevel=4)
@@ -260,10 +277,13 @@ def _build(cloud, marks, opts, rng):
 def _check_witness_work(cloud, idx, opts):
     work = _witness.lazy_witness_work(cloud, idx, opts["nu"], opts["cap"])
     if work > MAX_WITNESS_WORK:
+        fits = max(2, int(idx.size * np.sqrt(MAX_WITNESS_WORK / work)))
         raise MemoryBudgetError(
             f"Refused before building: the lazy witness edges need about {work:.3g} witness-pair evaluations "
             f"(limit {MAX_WITNESS_WORK:.3g}, hours of work). Give a finite 'max_scale' (only landmark pairs "
-            f"within it of a witness are evaluated) or use fewer landmarks.", parameter="max_scale")
+            f"within it of a witness are evaluated) or use fewer landmarks: with this max_scale about "
+            f"n_landmarks={fits} (the pairs per witness grow like the square of the landmarks within reach).",
+            parameter="max_scale")
 
 
 def _check_witness_table(cloud, idx, opts):
@@ -272,6 +292,43 @@ def _check_witness_table(cloud, idx, opts):
             f"Refused before building: gudhi's {opts['witness']} witness complex with no 'max_scale' lists every "
             f"landmark for every witness ({cloud.n_points} x {idx.size} entries). Give a finite 'max_scale' "
             f"(for example 2 to 4 times the coverage radius).", parameter="max_scale")
+    if opts["witness"] == "strong":
+        _check_strong_witness_time(cloud, idx, opts)
+
+
+def strong_witness_seconds(lengths, weight: float, max_dim: int) -> float:
+    """Predicted seconds of gudhi's strong witness complex: it visits every subset of each witness's list.
+
+    Measured with gudhi 3.13 (200 Gaussian points in R^3, 10-16 landmarks, no cap): 3.6-6.2e-7 s per
+    witness and subset for max_dim 1 (20 landmarks predicted 105 s, 107 s observed), 1.0-2.2e-6 s for
+    max_dim 2, rising with the list length; larger max_dim is charged more, unmeasured.
+    """
+    per_subset = STRONG_SECONDS_PER_SUBSET * (1.0 if max_dim <= 1 else 4.0 * (max_dim - 1))
+    log2_total = float(np.logaddexp2.reduce(lengths)) + np.log2(weight)
+    return float(2.0 ** min(log2_total, 1000.0) * per_subset)
+
+
+def _check_strong_witness_time(cloud, idx, opts):
+    lengths, weight = _witness.table_lengths(cloud, idx, opts["cap"], opts["max_dim"] + 2)
+    seconds = strong_witness_seconds(lengths, weight, opts["max_dim"])
+    if seconds <= MAX_STRONG_WITNESS_SECONDS:
+        return
+    per_subset = seconds / (2.0 ** float(np.logaddexp2.reduce(lengths)) * weight)
+    fits = int(np.floor(np.log2(MAX_STRONG_WITNESS_SECONDS / (cloud.n_points * per_subset))))
+    raise MemoryBudgetError(
+        f"Refused before building: gudhi's strong witness complex visits every subset of each witness's list of "
+        f"nearby landmarks (here up to {int(lengths.max())} landmarks, 2^{int(lengths.max())} subsets, for each of "
+        f"{cloud.n_points} witnesses): about {_duration(seconds)} of work (limit {MAX_STRONG_WITNESS_SECONDS:g} s). "
+        f"Use at most {max(fits, 2)} landmarks without a cap, give a finite 'max_scale' (each witness then lists "
+        f"only the landmarks within it), or choose witness='weak' or 'lazy'.", parameter="landmarks")
+
+
+def _duration(seconds: float) -> str:
+    if seconds < 120:
+        return f"{seconds:.3g} s"
+    if seconds < 7200:
+        return f"{seconds / 60:.3g} minutes"
+    return f"{seconds / 3600:.3g} hours"
 
 
 def _units(cloud, opts) -> str:

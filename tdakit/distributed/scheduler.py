@@ -1,0 +1,130 @@
+"""The pipeline's ``scheduler=`` option: a Dask client for a run, and what the run records about it.
+
+``tdakit.analyze(cloud, options, scheduler="tcp://host:8786")`` (or ``tdakit analyze ... --scheduler
+ADDRESS``) runs the landmark step with :func:`~tdakit.distributed.select_landmarks_distributed` (maxmin
+and random landmarks; the other methods run in this process) and the band's replicates on the
+cluster's workers, and records the scheduler's address and every worker's versions in
+``provenance["scheduler"]``. The numbers are those of the same run without a scheduler.
+``scheduler="local"`` starts a LocalCluster (one single-threaded worker per core) for the run.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import dataclasses
+import threading
+from collections.abc import Callable, Iterator
+
+from tdakit._validation import fail
+
+__all__ = ["open_scheduler", "analyze_on_scheduler", "landmark_function", "SchedulerSession"]
+
+_ACTIVE = threading.local()
+CONNECT_TIMEOUT = "20s"  # how long to wait for a scheduler address to answer
+_PACKAGES = ("tdakit", "numpy", "scipy", "numba", "dask", "distributed")
+
+
+@dataclasses.dataclass
+class SchedulerSession:
+    """A client for one run and the cluster it started (``"local"`` only)."""
+
+    client: object
+    cluster: object | None
+    address: str
+
+    def record(self) -> dict:
+        """The scheduler's address and each worker's Python and package versions."""
+        versions = self.client.get_versions(check=False, packages=list(_PACKAGES))
+        workers = {address: _packages(info) for address, info in sorted(versions.get("workers", {}).items())}
+        return {"address": self.address, "started_locally": self.cluster is not None, "n_workers": len(workers),
+                "scheduler": _packages(versions.get("scheduler", {})), "workers": workers}
+
+    def close(self) -> None:
+        self.client.close()
+        if self.cluster is not None:
+            self.cluster.close()
+
+
+def _packages(info: dict) -> dict:
+    packages = dict(info.get("packages", {}))
+    return {name: packages.get(name) for name in ("python", *_PACKAGES)}
+
+
+def open_scheduler(scheduler, function: str = "analyze") -> SchedulerSession:
+    """Connect to ``scheduler`` (an address such as ``"tcp://10.0.0.5:8786"``) or start ``"local"``.
+
+    Parameters
+    ----------
+    scheduler : str
+        A Dask scheduler address, or ``"local"`` for a LocalCluster with one single-threaded worker
+        per core of this machine.
+    function : str
+        The public function asking (for error messages).
+    """
+    if not isinstance(scheduler, str) or not scheduler.strip():
+        raise fail("scheduler", function, "None, 'local' or a Dask scheduler address such as 'tcp://host:8786'",
+                   scheduler)
+    try:
+        from distributed import Client, LocalCluster
+    except ImportError:
+        raise fail("scheduler", function, "None unless dask.distributed is installed (pip install "
+                   "tdakit[distributed])", scheduler) from None
+    scheduler = scheduler.strip()
+    if scheduler == "local":
+        import os
+
+        cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+        cluster = LocalCluster(n_workers=cores, threads_per_worker=1, processes=True, dashboard_address=None)
+        return SchedulerSession(Client(cluster), cluster, cluster.scheduler_address)
+    try:
+        client = Client(scheduler, timeout=CONNECT_TIMEOUT)
+    except (OSError, TimeoutError, ValueError) as exc:
+        raise fail("scheduler", function, f"the address of a running Dask scheduler (connecting failed: {exc})",
+                   scheduler) from None
+    return SchedulerSession(client, None, scheduler)
+
+
+@contextlib.contextmanager
+def _active(session: SchedulerSession) -> Iterator[None]:
+    previous = getattr(_ACTIVE, "session", None)
+    _ACTIVE.session = session
+    try:
+        yield
+    finally:
+        _ACTIVE.session = previous
+
+
+def landmark_function() -> Callable:
+    """The landmark selection the pipeline should call: on the active scheduler's cluster, else in memory."""
+    from tdakit.core.geometry.landmarks import select_landmarks
+
+    session = getattr(_ACTIVE, "session", None)
+    if session is None:
+        return select_landmarks
+
+    def select(cloud, n_landmarks, *, method="maxmin", rng=None, start=None, **others):
+        from tdakit.distributed.landmarks import DISTRIBUTED_METHODS, select_landmarks_distributed
+
+        if method not in DISTRIBUTED_METHODS:  # density-weighted and core maxmin: in this process
+            return select_landmarks(cloud, n_landmarks, method=method, rng=rng, start=start, **others)
+        return select_landmarks_distributed(cloud, n_landmarks, method=method, rng=rng, start=start,
+                                            client=session.client)
+
+    return select
+
+
+def analyze_on_scheduler(scheduler, cloud, options, **run):
+    """``analyze(cloud, options, **run)`` with its landmarks and replicates on the cluster; provenance records it."""
+    from tdakit.pipeline import analyze
+
+    if run.get("executor") is not None:
+        raise fail("executor", "analyze", "None when a scheduler is given (the scheduler's client runs the "
+                   "replicates)", run["executor"])
+    session = open_scheduler(scheduler, "analyze")
+    try:
+        with _active(session):
+            result = analyze(cloud, options, **{**run, "executor": session.client})
+        record = session.record()
+    finally:
+        session.close()
+    return dataclasses.replace(result, provenance={**result.provenance, "scheduler": record})
