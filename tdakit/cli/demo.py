@@ -49,8 +49,14 @@ def run(args, demo_file) -> int:
 
 
 def _print_top(rows, cloud, count=6):
-    print(f"  {'birth':>12} {'death':>12} {'persistence':>12} {'real?':>6}  born at (x, y, z)")
-    for row in rows.head(count).itertuples():
-        where = ", ".join(f"{v:.1f}" for v in cloud.points[row.birth_vertices[0]]) if row.birth_vertices else "-"
+    rows = rows.head(count)
+    located = any(bool(v) for v in rows.birth_vertices)  # the density band has no vertices to point at
+    where = "  born at (x, y, z)" if located else ""
+    print(f"  {'birth':>12} {'death':>12} {'persistence':>12} {'real?':>6}{where}")
+    for row in rows.itertuples():
         verdict = "-" if pd.isna(row.significant) else ("yes" if row.significant else "noise")
-        print(f"  {row.birth:12.5g} {row.death:12.5g} {row.persistence:12.5g} {verdict:>6}  ({where})")
+        line = f"  {row.birth:12.5g} {row.death:12.5g} {row.persistence:12.5g} {verdict:>6}"
+        if located:
+            line += "  (" + (", ".join(f"{v:.1f}" for v in cloud.points[row.birth_vertices[0]])
+                             if row.birth_vertices else "-") + ")"
+        print(line)

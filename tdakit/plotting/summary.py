@@ -35,7 +35,8 @@ def run_caption(run) -> str:
     vertices = (f"{run.landmarks.n_landmarks} landmarks (coverage radius {run.coverage_radius:.3g}{bound_text})"
                 if run.landmarks is not None else
                 "every point (kernel density on a grid)" if run.diagrams.filtration == "density" else "every point")
-    unit = f" Scales in {run.unit}." if run.unit else ""
+    unit = ("" if not run.unit else f" Coordinates in {run.unit}; scales are negated density."
+            if run.diagrams.filtration == "density" else f" Scales in {run.unit}.")
     return (f"{source.get('n_points', '?')} points, {source.get('n_dims', '?')} coordinates; {vertices}; seed "
             f"{run.seed}.{unit} {statement}{warning}"
             + (" Boxed numbers mark the same feature in every panel." if numbered else ""))
