@@ -344,6 +344,6 @@ def _recommend(summary, method, max_dim) -> Recommendation:
                 f"every seed finds the same significant features ({text}); bottleneck distance to the reference "
                 f"{distances}; coverage radius <= {chosen['coverage_radius_max']:.3g}.")
     if sum(features) <= 1:
-        evidence += (" No feature beyond one component stands above the band: the band may be too wide for this "
-                     "sample size (the subsample band is valid but conservative) rather than the data featureless.")
+        evidence += (" No feature beyond one component stands above the band: the band (its landmark bound "
+                     "included) may be too wide for these landmarks rather than the data featureless.")
     return Recommendation(method, int(chosen["n_landmarks"]), features, evidence)
