@@ -7,6 +7,7 @@ unknown key is an error that names it.
 
 from __future__ import annotations
 
+import math
 import re
 from dataclasses import asdict, dataclass, field, fields
 
@@ -42,6 +43,8 @@ def parse_memory_size(value, name: str = "memory_budget", function: str = "Compl
             raise fail(name, function, "a size in bytes such as 8GB, 512MiB, 0.5TB or 16G (GB = 10^9 bytes, "
                        "GiB = 2^30)", value)
         value = float(match.group(1)) * _SIZE_UNITS[match.group(2)]
+        if not math.isfinite(value):  # "1e400GB" must not switch the budget off
+            raise fail(name, function, "a finite size such as 8GB (or 'inf' to switch the budget off)", text)
     return check_float(value, name, function, low=0.0, low_open=True, allow_inf=True, note="bytes")
 
 

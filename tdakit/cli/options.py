@@ -119,7 +119,8 @@ def analysis_options(args, config: dict | None = None) -> AnalysisOptions:
     overrides = {("sampling", "method"): args.sampling, ("complex", "filtration"): args.complex,
                  ("complex", "max_dim"): args.max_dim, ("complex", "max_scale"): args.max_scale,
                  ("band", "method"): args.band, ("band", "level"): args.level,
-                 ("band", "n_boot"): replicate_count(args), ("complex", "memory_budget"): args.memory_budget}
+                 ("band", "n_boot"): replicate_count(args),
+                 ("complex", "memory_budget"): args.memory_budget}
     for (section, key), value in overrides.items():
         if value is not None:
             sections[section][key] = value
@@ -213,7 +214,10 @@ def study_options(config: dict, memory_budget=None) -> StudyOptions:
 # -- the core's words in the command line's words ---------------------------------------------------------
 _FLAGS = {"max_scale": "--max-scale", "max_dim": "--max-dim", "n_landmarks": "--landmarks",
           "landmarks": "--landmarks", "memory_budget": "--memory-budget", "n_boot": "--n-boot", "level": "--level",
-          "filtration": "--complex", "n_jobs": "--jobs"}
+          "filtration": "--complex", "n_jobs": "--jobs", "columns": "--columns", "metric": "--metric", "box": "--box",
+          "standardize": "--standardize", "where": "--where", "dataset": "--dataset", "file_format": "--file-format",
+          "unit": "--unit", "drop_missing": "--drop-missing", "sky": "--sky", "angle_unit": "--angle-unit",
+          "cosmology": "--cosmology", "little_h": "--little-h", "scheduler": "--scheduler"}
 _CONFIG_ONLY = {"resolution": "band", "bandwidth": "band", "sparse": "complex", "witness": "complex",
                 "dtm_neighbors": "complex", "subsample_size": "band", "n_subsamples": "band"}
 
@@ -236,6 +240,7 @@ def in_cli_words(message: str) -> str:
         text = text.replace(f"'{name}'", f"[{section}] {name} (in --config)")
     text = re.sub(r"\bwith select_landmarks\b", "with --landmarks", text)
     text = re.sub(r"\(select_landmarks; ", "(", text)
+    text = re.sub(r"\bThe (--[a-z-]+) parameter of [\w.]+ must be", r"\1 must be", text)
     text = text.replace("the number of landmarks", "--landmarks")
     for name in ("max_scale", "max_dim", "n_landmarks", "memory_budget"):  # bare names left, e.g. "no max_scale"
         text = re.sub(rf"(?<![\w-]){name}\b", _FLAGS[name], text)

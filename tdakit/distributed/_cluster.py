@@ -142,6 +142,9 @@ def get_client(client, function: str):
                        "(e.g. Client(LocalCluster()) or a dask-jobqueue cluster)", client) from None
     if not isinstance(client, Client):
         raise fail("client", function, "a dask.distributed Client or None", client)
+    if client.status != "running":  # closed, closing or never connected: calls would fail deep inside dask
+        raise fail("client", function, f"a connected Client (this one's status is {client.status!r}; open a new "
+                   f"one with Client(address))", client)
     return client
 
 

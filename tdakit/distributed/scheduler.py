@@ -20,7 +20,8 @@ from tdakit._validation import fail
 __all__ = ["open_scheduler", "analyze_on_scheduler", "landmark_function", "SchedulerSession"]
 
 _ACTIVE = threading.local()
-CONNECT_TIMEOUT = "20s"  # how long to wait for a scheduler address to answer
+CONNECT_TIMEOUT = "10s"  # how long a scheduler that accepted the connection has to answer
+PROBE_SECONDS = 3.0  # how long to wait for a TCP address to accept a connection at all
 _PACKAGES = ("tdakit", "numpy", "scipy", "numba", "dask", "distributed")
 
 
@@ -60,6 +61,12 @@ def open_scheduler(scheduler, function: str = "analyze") -> SchedulerSession:
         per core of this machine.
     function : str
         The public function asking (for error messages).
+
+    Notes
+    -----
+    A ``tcp://`` address is first probed: it must accept a connection within ``PROBE_SECONDS`` and answer dask's
+    identity call as a scheduler; a refused, unknown or silent address, or a server that is no scheduler, is
+    refused within seconds, never after dask's own connection timeout.
     """
     if not isinstance(scheduler, str) or not scheduler.strip():
         raise fail("scheduler", function, "None, 'local' or a Dask scheduler address such as 'tcp://host:8786'",
@@ -76,12 +83,73 @@ def open_scheduler(scheduler, function: str = "analyze") -> SchedulerSession:
         cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
         cluster = LocalCluster(n_workers=cores, threads_per_worker=1, processes=True, dashboard_address=None)
         return SchedulerSession(Client(cluster), cluster, cluster.scheduler_address)
+    _probe(scheduler, function)
     try:
         client = Client(scheduler, timeout=CONNECT_TIMEOUT)
-    except (OSError, TimeoutError, ValueError) as exc:
-        raise fail("scheduler", function, f"the address of a running Dask scheduler (connecting failed: {exc})",
-                   scheduler) from None
+    except Exception as exc:  # noqa: BLE001 - OSError, TimeoutError, ValueError, or a foreign server's garbage
+        raise fail("scheduler", function, f"the address of a running Dask scheduler (connecting failed: "
+                   f"{type(exc).__name__}: {exc})", scheduler) from None
     return SchedulerSession(client, None, scheduler)
+
+
+def _probe(scheduler: str, function: str) -> None:
+    """Fail within ``PROBE_SECONDS`` when a TCP address is malformed, unknown or not listening.
+
+    dask's Client retries a refused connection until its timeout and then leaves a half-made client whose
+    finaliser waits and prints a traceback at exit; a plain socket connection first avoids both.
+    """
+    import socket
+
+    from distributed.comm import parse_address
+    from distributed.comm.addressing import parse_host_port
+
+    try:
+        scheme, location = parse_address(scheduler)
+        if scheme != "tcp":
+            return  # tls, ws, inproc, ucx: left to dask
+        host, port = parse_host_port(location)
+        port = int(port)
+    except (ValueError, TypeError) as exc:
+        raise fail("scheduler", function, f"a Dask scheduler address such as 'tcp://host:8786' ({exc})",
+                   scheduler) from None
+    if not 0 < port < 65536:
+        raise fail("scheduler", function, "an address whose port is between 1 and 65535", scheduler)
+    try:
+        with socket.create_connection((host, port), timeout=PROBE_SECONDS):
+            pass
+    except (OSError, UnicodeError) as exc:
+        reason = "timed out" if isinstance(exc, TimeoutError) else (exc.strerror or str(exc))
+        raise fail("scheduler", function, f"the address of a running Dask scheduler (connecting to {host}:{port} "
+                   f"failed within {PROBE_SECONDS:g} s: {reason})", scheduler) from None
+    kind = _identity(scheduler)
+    if kind != "Scheduler":
+        raise fail("scheduler", function, f"the address of a running Dask scheduler ({host}:{port} accepts "
+                   f"connections but does not answer as one: {kind})", scheduler)
+
+
+def _identity(address: str) -> str:
+    """What answers at ``address`` ("Scheduler" for a Dask scheduler), asked in a thread of its own (so it works
+    under a running event loop, as in Jupyter) and given at most ``PROBE_SECONDS``.
+    """
+    import asyncio
+    import concurrent.futures
+
+    from distributed.core import rpc
+
+    async def ask() -> str:
+        async with rpc(address, timeout=PROBE_SECONDS) as remote:
+            answer = await asyncio.wait_for(remote.identity(), PROBE_SECONDS)
+        return str(answer.get("type")) if isinstance(answer, dict) else f"an answer of type {type(answer).__name__}"
+
+    pool = concurrent.futures.ThreadPoolExecutor(1, thread_name_prefix="tdakit-probe")
+    try:
+        return pool.submit(asyncio.run, ask()).result(timeout=2 * PROBE_SECONDS + 1)
+    except concurrent.futures.TimeoutError:
+        return f"no answer within {PROBE_SECONDS:g} s"
+    except Exception as exc:  # noqa: BLE001 - whatever a foreign server sends back must end as a refusal
+        return f"{type(exc).__name__}: {' '.join(str(exc).split())[:200]}"
+    finally:
+        pool.shutdown(wait=False)
 
 
 @contextlib.contextmanager

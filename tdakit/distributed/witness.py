@@ -7,6 +7,7 @@ import numpy as np
 from tdakit._validation import check_float, check_int, fail
 from tdakit.core.geometry.landmarks import Landmarks
 from tdakit.distributed._cluster import Workers, describe_source, get_client, resolve_metric
+from tdakit.errors import MemoryBudgetError
 
 __all__ = ["witness_edge_values_distributed"]
 
@@ -48,6 +49,12 @@ def witness_edge_values_distributed(
     ndarray of shape (n_landmarks, n_landmarks)
         e(a, b) = max(0, min_w [max(d(a, w), d(b, w)) - m_nu(w)]); zero diagonal.
 
+    Raises
+    ------
+    MemoryBudgetError
+        The matrices (8 n_landmarks^2 bytes per worker, plus two here) would exceed a quarter of this machine's
+        memory; refused before any worker starts.
+
     References
     ----------
     .. [1] V. de Silva, G. Carlsson, "Topological estimation using witness complexes",
@@ -64,6 +71,7 @@ def witness_edge_values_distributed(
                                                        allow_inf=True)
     chosen_metric = resolve_metric(metric, box, p, cloud_metric, described.n_cols, _FN)
     client = get_client(client, _FN)
+    _check_matrix_memory(rows.size, len(client.scheduler_info(n_workers=-1)["workers"]))
     workers = Workers(client, described, chosen_metric, 1, chunk_rows, _FN)
     try:
         marks = workers.coordinates(rows.tolist())
@@ -73,3 +81,16 @@ def witness_edge_values_distributed(
     edges = np.maximum(np.minimum(edges, edges.T), 0.0)
     np.fill_diagonal(edges, 0.0)
     return edges
+
+
+def _check_matrix_memory(n_landmarks: int, n_workers: int) -> None:
+    """Refuse landmark counts whose matrices (one per worker, all gathered here) exceed the memory budget."""
+    from tdakit.core.topology.preflight import default_memory_budget
+
+    need, budget = 8.0 * n_landmarks**2 * (max(n_workers, 1) + 2), default_memory_budget()
+    if need > budget:
+        raise MemoryBudgetError(
+            f"The 'landmarks' parameter of {_FN} holds {n_landmarks:,} landmarks: one {n_landmarks:,} x "
+            f"{n_landmarks:,} matrix per worker ({n_workers}), gathered and reduced here, would take "
+            f"{need / 2**30:.3g} GiB, over the memory budget of {budget / 2**30:.3g} GiB (a quarter of this "
+            f"machine's memory). Use fewer landmarks.", parameter="landmarks")

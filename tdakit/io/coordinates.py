@@ -136,6 +136,15 @@ def comoving_distance(redshift: ArrayLike, *, cosmology=DEFAULT_COSMOLOGY, littl
     -------
     ndarray of shape (n,)
 
+    Raises
+    ------
+    InvalidParameterError
+        A cosmology that is not known, has parameters that are not finite (or ``H0 <= 0``, ``Tcmb0 < 0``, a
+        parameter given twice), or gives no finite distance up to the largest redshift (no big bang).
+    InvalidDataError
+        A redshift that is negative or not finite, or where astropy's integral fails (its distance is not larger
+        than at lower redshifts, e.g. z = 1e300).
+
     Notes
     -----
     ``D_C(z) = (c/H0) * integral_0^z dz'/E(z')`` [1]_ (eq. 15), computed by astropy. For more than 8193 redshifts
@@ -259,6 +268,9 @@ class SkyConversion:
         if isinstance(value, cls):
             return value
         if isinstance(value, str):
+            if value not in DISTANCE_KINDS:
+                raise fail("sky", "load_cloud", f"None or one of {', '.join(map(repr, DISTANCE_KINDS))} (what the "
+                           f"third column holds), a mapping or a SkyConversion", value)
             return cls(value)
         if isinstance(value, Mapping):
             known = {"distance", "angle_unit", "cosmology", "little_h", "cosmology_parameters", "unit", "astropy"}
@@ -385,14 +397,43 @@ def _check_redshifts(z, function: str) -> None:
 
 
 def _distance_function(model, z_low: float, z_high: float, n: int):
-    """D_C(z) in Mpc: astropy directly for few redshifts, else a cubic spline through a grid spanning the data."""
+    """D_C(z) in Mpc: astropy directly for few redshifts, else a cubic spline through a grid spanning the data.
+
+    Every value astropy gives is checked (:func:`_checked_distances`) before use.
+    """
     if n <= _GRID_POINTS or z_high == z_low:
-        return lambda z: np.asarray(model.comoving_distance(z).value, dtype=np.float64)
+        return lambda z: _checked_distances(model, z)
     from scipy.interpolate import CubicSpline
 
     grid = np.linspace(np.log1p(z_low), np.log1p(z_high), _GRID_POINTS)  # D_C is smooth in log(1 + z)
-    spline = CubicSpline(grid, model.comoving_distance(np.expm1(grid)).value)
+    spline = CubicSpline(grid, _checked_distances(model, np.expm1(grid)))
     return lambda z: spline(np.log1p(z))
+
+
+def _checked_distances(model, z) -> NDArray[np.float64]:
+    """D_C(z) from astropy, refused when not finite (no big bang) or not increasing with z (its integral failed)."""
+    z = np.asarray(z, dtype=np.float64)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # invalid values are reported below, with their redshift
+        distance = np.asarray(model.comoving_distance(z).value, dtype=np.float64)
+    bad = ~np.isfinite(distance)
+    if bad.any():
+        first = int(np.flatnonzero(bad)[0])
+        raise InvalidParameterError(
+            f"The 'cosmology' parameter gives no finite comoving distance at redshift {z[first]!r} "
+            f"({int(bad.sum())} redshift(s)): E(z)^2 = Om0 (1+z)^3 + Ok0 (1+z)^2 + Ode0 must stay positive from 0 "
+            f"to the largest redshift (a model without a big bang, or parameters out of range: "
+            f"{_record(model)}).", parameter="cosmology")
+    order = np.argsort(z, kind="stable")
+    wrong = (np.diff(distance[order]) < 0) if z.size > 1 else np.zeros(0, dtype=bool)
+    zero = (distance <= 0) & (z > 0)
+    if wrong.any() or zero.any():
+        row = int(np.flatnonzero(zero)[0]) if zero.any() else int(order[np.flatnonzero(wrong)[0] + 1])
+        raise InvalidDataError(
+            f"Input 'redshift' holds {z[row]!r}, where astropy's comoving-distance integral fails (it gives "
+            f"{distance[row]!r} Mpc, not more than at lower redshifts). Keep realistic redshifts, e.g. "
+            f"where='z < 20'.", parameter="redshift")
+    return distance
 
 
 def resolve_cosmology(cosmology, function: str):
@@ -420,15 +461,39 @@ def _parameters(spec, function: str) -> dict:
             spec = dict(spec["parameters"])
         if set(spec) - set(_COSMOLOGY_KEYS) - {"name", "class", "m_nu"}:
             raise _cosmology_error(spec, function)
-        return {key: value for key, value in spec.items() if key in _COSMOLOGY_KEYS and value is not None}
+        return _numbers({key: value for key, value in spec.items() if key in _COSMOLOGY_KEYS and value is not None},
+                        function)
     text = re.sub(r"^\s*(Flat)?LambdaCDM\s*\((.*)\)\s*$", r"\2", spec)
     parameters = {}
     for part in filter(None, (p.strip() for p in text.split(","))):
         key, _, value = part.partition("=")
+        if key.strip() in parameters:
+            raise InvalidParameterError(f"The 'cosmology' parameter of {function} gives {key.strip()!r} twice: "
+                                        f"{spec!r}.", parameter="cosmology")
         try:
             parameters[key.strip()] = float(value)
         except ValueError:
             raise _cosmology_error(spec, function) from None
+    return _numbers(parameters, function)
+
+
+# (bound, excluded): H0 > 0 and Tcmb0 >= 0, which astropy does not check (it refuses negative densities and Neff)
+_LOWER_BOUNDS = {"H0": (0.0, True), "Tcmb0": (0.0, False)}
+
+
+def _numbers(parameters: dict, function: str) -> dict:
+    """Each Lambda-CDM parameter a finite real number (not a bool) within its physical range."""
+    for key, value in parameters.items():
+        if key not in _COSMOLOGY_KEYS:
+            continue
+        number = value if isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(
+            value, (bool, np.bool_)) else None
+        low, strict = _LOWER_BOUNDS.get(key, (-math.inf, False))
+        if number is None or not math.isfinite(number) or number < low or (strict and number == low):
+            bound = "" if key not in _LOWER_BOUNDS else f" {'>' if strict else '>='} {low:g}"
+            raise InvalidParameterError(
+                f"The 'cosmology' parameter of {function} must give {key} as a finite real number{bound}. Got "
+                f"{value!r} (type {type(value).__name__}) instead.", parameter="cosmology")
     return parameters
 
 

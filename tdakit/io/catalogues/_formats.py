@@ -128,7 +128,11 @@ class FitsSource(Source):
     def _choose(self, tables, dataset):
         if not tables:
             self.hdul.close()
-            raise InvalidDataError(f"The FITS file {str(self.path)!r} holds no table extension.", parameter="source")
+            size = self.path.stat().st_size
+            damage = (f" Its size, {size} bytes, is not a multiple of the 2880-byte FITS block: the file is "
+                      f"truncated or damaged." if size % 2880 else "")
+            raise InvalidDataError(f"The FITS file {str(self.path)!r} holds no table extension.{damage}",
+                                   parameter="source")
         if dataset is None:
             return self.hdul[tables[0]]
         if isinstance(dataset, str) and dataset.strip().isdigit():  # "--dataset 2" on the command line
@@ -234,7 +238,13 @@ class Hdf5Source(Source):
                 f"The 'dataset' parameter of load_cloud must be the path of a dataset or group in the HDF5 file "
                 f"(e.g. 'survey/galaxies'); tables in the file: {listed(self._candidates())}. Got {dataset!r} "
                 f"instead.", parameter="dataset")
-        return self.file[dataset]
+        try:
+            return self.file[dataset]
+        except (KeyError, OSError, ValueError) as exc:  # a soft or external link whose target is missing
+            raise InvalidParameterError(
+                f"The 'dataset' parameter of load_cloud names {dataset!r} in the HDF5 file {str(self.path)!r}, a "
+                f"link whose target cannot be opened ({exc}); tables in the file: {listed(self._candidates())}.",
+                parameter="dataset") from None
 
     def _describe(self) -> None:
         node = self.node
@@ -261,6 +271,23 @@ class Hdf5Source(Source):
                 f"The HDF5 dataset {node.name!r} has shape {node.shape}; tdakit reads a compound dataset, a group "
                 f"of 1-D datasets, or a 1-D or 2-D numeric dataset.", parameter="dataset")
         self.names = tuple(self.columns)
+        for child in dict.fromkeys(self.columns.values()):
+            self._check_storage(child)
+
+    def _check_storage(self, node) -> None:
+        """Refuse a dataset that declares more data than it stores: the rows never written would be read as its
+        fill value (and a declared size of 10^12 rows would be scanned for hours). Compressed datasets may store
+        less, so only one storing nothing at all is refused.
+        """
+        declared = int(node.size) * node.dtype.itemsize
+        stored = int(node.id.get_storage_size())
+        filtered = any((node.compression, node.shuffle, node.fletcher32, node.scaleoffset is not None))
+        if declared and (stored == 0 or (not filtered and stored < declared)):
+            raise InvalidDataError(
+                f"The HDF5 dataset {node.name!r} of {str(self.path)!r} declares shape {node.shape} ({declared:,} "
+                f"bytes) but stores {stored:,} bytes: the rows never written would be read as its fill value "
+                f"{node.fillvalue!r}. The file is incomplete; write every row, or choose another dataset.",
+                parameter="dataset")
 
     def _rows_of(self, node) -> int:
         if node.ndim != 1:
@@ -352,6 +379,10 @@ class ParquetSource(Source):
         self.label = f"{self.file.metadata.num_row_groups} row group(s)"
 
     def dtype(self, name: str) -> np.dtype:
+        if self.names.count(name) > 1:  # pyarrow cannot pick one of several same-named columns
+            raise InvalidDataError(
+                f"The Parquet file {str(self.path)!r} holds {self.names.count(name)} columns named {name!r}; tdakit "
+                f"cannot tell them apart. Rename them, or use other columns.", parameter="columns")
         kind = self.schema.field(name).type
         types = self.pa.types
         if types.is_integer(kind) or types.is_floating(kind) or types.is_boolean(kind):

@@ -10,7 +10,7 @@ import numpy as np
 
 from tdakit._validation import check_bool, fail
 from tdakit.core.geometry.cloud import Cloud, make_cloud
-from tdakit.errors import TdakitWarning
+from tdakit.errors import InvalidDataError, TdakitWarning
 from tdakit.io.catalogues.reading import catalogue_format, read_catalogue
 from tdakit.io.coordinates import SkyConversion
 
@@ -57,6 +57,7 @@ def load_catalogue(source, *, columns, metric, standardize: bool, unit, where=No
     checksum = _sha256(path)
     table = read_catalogue(source, columns=columns, where=where, dataset=dataset, file_format=file_format,
                            drop_missing=drop_missing)
+    _enough_rows(table, path, where)
     if conversion is not None:
         values, names, unit = _convert(table.values, conversion, table.units, unit)
     else:
@@ -68,6 +69,22 @@ def load_catalogue(source, *, columns, metric, standardize: bool, unit, where=No
     return make_cloud(values, metric, columns=names, source=str(path.resolve()), standardize=standardize,
                       source_checksum=checksum, unit=unit,
                       read_options=tuple((name, value) for name, value in given if value is not None))
+
+
+def _enough_rows(table, path: Path, where) -> None:
+    """Refuse fewer than two rows naming the file, and the filter or the rows dropped that left so few."""
+    kept = table.values.shape[0]
+    if kept >= 2:
+        return
+    causes = []
+    if where is not None:
+        causes.append(f"after the filter where={where!r} (command line: --where)")
+    if table.n_dropped_missing:
+        causes.append(f"after drop_missing=True dropped {table.n_dropped_missing} row(s) with missing values")
+    because = "".join(" " + cause for cause in causes)
+    raise InvalidDataError(
+        f"The table of {str(path)!r} gives {kept} row(s) of its {table.n_rows}{because}; a cloud needs at least 2 "
+        f"points.", parameter="where" if where is not None else "source")
 
 
 def _no_text_options(text_options: dict) -> None:

@@ -24,6 +24,7 @@ from tdakit.errors import (
     DataFileNotFoundError,
     InvalidDataError,
     InvalidParameterError,
+    MemoryBudgetError,
     TdakitError,
     TdakitWarning,
 )
@@ -144,6 +145,8 @@ def read_catalogue(
         An unknown column, a filter outside the filter language, a bad option.
     DataFileNotFoundError
         No such file.
+    MemoryBudgetError
+        The rows to keep would take more than half of the machine's (or container's) memory as float64.
     """
     path = Path(path)
     fmt = catalogue_format(path, file_format)
@@ -248,7 +251,7 @@ def _fill(source, chosen, row_filter, drop_missing, chunk_rows):
     else:
         passes = _passing(source, filter_columns, row_filter, drop_missing, chunk_rows)
         n_out = sum(int(keep.sum()) for _, keep, _, _ in passes)
-    out = np.empty((n_out, len(chosen)), dtype=np.float64)
+    out = _allocate(source, n_out, len(chosen), row_filter)
     position = dropped = 0
     wanted = list(dict.fromkeys(filter_columns + list(chosen)))
     for _, keep, chunk, lost in _passing(source, wanted, row_filter, drop_missing, chunk_rows, chosen):
@@ -261,6 +264,25 @@ def _fill(source, chosen, row_filter, drop_missing, chunk_rows):
         position += count
         dropped += lost
     return (out if position == n_out else out[:position]), dropped
+
+
+def _allocate(source, n_rows: int, n_columns: int, row_filter) -> np.ndarray:
+    """The output array, refused before allocating when it would take more than half of the memory."""
+    from tdakit.core.topology.preflight import default_memory_budget
+
+    need, limit = 8 * n_rows * n_columns, 2 * default_memory_budget()  # half the machine's or container's memory
+    if need > limit:
+        kept = "rows that pass the filter" if row_filter is not None else "rows the file declares"
+        raise MemoryBudgetError(
+            f"Reading {n_columns} column(s) of {str(source.path)!r} ({source.label}) would take {need / 2**30:.3g} "
+            f"GiB as float64 for its {n_rows:,} {kept}, more than half of this machine's memory "
+            f"({limit / 2**30:.3g} GiB). Read fewer rows with where=... (command line: --where), or check the "
+            f"file: its declared size may be wrong.", parameter="source")
+    try:
+        return np.empty((n_rows, n_columns), dtype=np.float64)
+    except MemoryError:
+        raise MemoryBudgetError(f"Could not allocate {need / 2**30:.3g} GiB for the {n_rows:,} rows of "
+                                f"{str(source.path)!r}; read fewer rows with where=...", parameter="source") from None
 
 
 def _passing(source, names, row_filter, drop_missing, chunk_rows, chosen=()):

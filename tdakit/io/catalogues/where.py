@@ -256,6 +256,9 @@ def _show_operand(operand: tuple) -> str:
 
 
 def _evaluate(tree: tuple, values: Mapping[str, NDArray]):
+    """The mask of ``tree``; a run of one operator (``a and b and c``, a chained comparison) is walked in a loop,
+    so recursion goes only as deep as the parentheses and ``not`` (at most ``_MAX_DEPTH``), whatever the length.
+    """
     kind = tree[0]
     if kind == "cmp":
         _, operator, left, right = tree
@@ -263,7 +266,14 @@ def _evaluate(tree: tuple, values: Mapping[str, NDArray]):
     if kind == "not":
         return np.logical_not(_evaluate(tree[1], values))
     combine = np.logical_and if kind == "and" else np.logical_or
-    return combine(_evaluate(tree[1], values), _evaluate(tree[2], values))
+    rights = []
+    while tree[0] == kind:  # the parser nests a run to the left: ((a and b) and c) and d
+        rights.append(tree[2])
+        tree = tree[1]
+    result = _evaluate(tree, values)
+    for right in reversed(rights):
+        result = combine(result, _evaluate(right, values))
+    return result
 
 
 def _operand(operand: tuple, values: Mapping[str, NDArray]):
