@@ -45,3 +45,29 @@ def two_circles(n_points: int, rng=0) -> np.ndarray:
     big = int(0.6 * n_points)
     points = np.vstack([circle(big, rng=generator), 0.7 * circle(n_points - big, rng=generator) + [3.0, 0.0]])
     return points + generator.normal(0.0, 0.02, points.shape)
+
+
+def cli(capsys, *args):
+    """Run ``tdakit`` in this process: (exit code, stdout, stderr)."""
+    from tdakit.cli.main import main
+
+    try:
+        code = main([str(a) for a in args])
+    except SystemExit as exc:  # argparse's usage errors
+        code = exc.code
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def assert_refused(result, needles, code=1):
+    """Exit ``code`` (1: one 'tdakit: error:' line last; 2: argparse usage), no traceback, a needle named."""
+    status, out, err = result
+    assert status == code, (status, out, err)
+    assert "Traceback" not in out + err and "internal error" not in err, err
+    if code == 1:
+        lines = [line for line in err.splitlines() if not line.startswith("[")]  # progress lines may come first
+        assert lines and lines[-1].startswith("tdakit: error:"), err
+    else:
+        assert "usage:" in err, err
+    needles = (needles,) if isinstance(needles, str) else needles
+    assert any(needle in err for needle in needles), (needles, err)

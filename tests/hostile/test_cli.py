@@ -14,29 +14,10 @@ import numpy as np
 import pytest
 
 from tdakit.shapes import circle
+from tests.helpers import assert_refused, cli
 
 REPO = Path(__file__).resolve().parents[2]
 HALOS = REPO / "datasets" / "marrowfield_halos.csv"
-
-
-def cli(capsys, *args):
-    from tdakit.cli.main import main
-
-    try:
-        code = main([str(a) for a in args])
-    except SystemExit as exc:  # argparse's usage errors
-        code = exc.code
-    out, err = capsys.readouterr()
-    return code, out, err
-
-
-def assert_refused(result, needle, code=1):
-    status, out, err = result
-    assert status == code, (status, out, err)
-    assert "Traceback" not in out + err and "internal error" not in err, err
-    lines = [line for line in err.splitlines() if not line.startswith("[")]  # progress lines may come first
-    assert lines and lines[-1].startswith("tdakit: error:") or code == 2, err
-    assert needle in err, (needle, err)
 
 
 @pytest.fixture(scope="module")

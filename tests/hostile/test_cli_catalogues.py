@@ -9,6 +9,7 @@ import numpy as np
 import pytest
 
 from tdakit import shapes
+from tests.helpers import assert_refused, cli
 
 fits = pytest.importorskip("astropy.io.fits")
 h5py = pytest.importorskip("h5py")
@@ -16,30 +17,6 @@ pq = pytest.importorskip("pyarrow.parquet")
 pa = pytest.importorskip("pyarrow")
 
 N = 80
-
-
-def cli(capsys, *args):
-    from tdakit.cli.main import main
-
-    try:
-        code = main([str(a) for a in args])
-    except SystemExit as exc:  # argparse's usage errors
-        code = exc.code
-    out, err = capsys.readouterr()
-    return code, out, err
-
-
-def assert_refused(result, needles, code=1):
-    status, out, err = result
-    assert status == code, (status, out, err)
-    assert "Traceback" not in out + err and "internal error" not in err, err
-    if code == 1:
-        lines = [line for line in err.splitlines() if not line.startswith("[")]  # progress lines may come first
-        assert lines and lines[-1].startswith("tdakit: error:"), err
-    else:
-        assert "usage:" in err, err
-    needles = (needles,) if isinstance(needles, str) else needles
-    assert any(needle in err for needle in needles), (needles, err)
 
 
 @pytest.fixture(scope="module")
