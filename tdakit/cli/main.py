@@ -143,6 +143,9 @@ def main(argv: list[str] | None = None) -> int:
         print(f"tdakit: error: {_message(exc)}", file=sys.stderr)
         return 1
     except Exception as exc:  # a bug in tdakit: one line all the same, and how to see more
+        interrupt = _interrupt_inside(exc)
+        if interrupt is not None:  # Ctrl-C or SIGTERM inside compiled code arrives wrapped in a SystemError
+            return _interrupted(args, isinstance(interrupt, _Terminated))
         if args.debug:
             raise
         print(f"tdakit: internal error: {type(exc).__name__}: {' '.join(str(exc).split())} (rerun with --debug for "
@@ -151,6 +154,17 @@ def main(argv: list[str] | None = None) -> int:
     finally:
         if previous is not None:
             signal.signal(signal.SIGTERM, previous)
+
+
+def _interrupt_inside(exc: BaseException) -> KeyboardInterrupt | None:
+    """The KeyboardInterrupt (or termination) behind ``exc``, when one caused it."""
+    seen = set()
+    while exc is not None and id(exc) not in seen:
+        if isinstance(exc, KeyboardInterrupt):
+            return exc
+        seen.add(id(exc))
+        exc = exc.__cause__ or exc.__context__
+    return None
 
 
 def _main_thread() -> bool:

@@ -267,3 +267,22 @@ def test_demo_into_a_file_is_refused_before_loading(data, capsys):
     assert_refused((status, out, err), "a_file.txt")
     assert "Loaded" not in out
 
+
+
+@pytest.mark.entry("tdakit analyze")
+def test_an_interrupt_inside_compiled_code_is_still_an_interrupt(monkeypatch, capsys, tmp_path):
+    # Ctrl-C inside numba code surfaces as SystemError("... returned a result with an exception set") chained to
+    # the KeyboardInterrupt (seen with the maxmin kernel): exit 130 with the one line, not an internal error.
+    import importlib
+
+    cli_main = importlib.import_module("tdakit.cli.main")  # the module (tdakit.cli.main is also the function)
+
+    def compiled_code_interrupted(args):
+        try:
+            raise KeyboardInterrupt
+        except KeyboardInterrupt as inner:
+            raise SystemError("CPUDispatcher(maxmin_tree) returned a result with an exception set") from inner
+
+    monkeypatch.setattr(cli_main, "_dispatch", compiled_code_interrupted)
+    code, _, err = cli(capsys, "demo", "--out", tmp_path)
+    assert code == 130 and "interrupted" in err and "internal error" not in err and "Traceback" not in err
