@@ -98,18 +98,22 @@ def test_text_like_tables(folder, tokens, options):
     cloud_or_tdakit_error(path, **options)
 
 
+def overwritten(original: bytes, data: bytes, position: int, path):
+    """``original`` with ``data`` written over it at ``position`` (modulo its length), saved at ``path``."""
+    damaged = bytearray(original)
+    start = position % len(damaged)
+    damaged[start:start + len(data)] = data
+    path.write_bytes(bytes(damaged))
+    return path
+
+
 @pytest.mark.entry("load_cloud")
 @FUZZ
 @given(data=st.binary(min_size=1, max_size=64), position=st.integers(0, 10_000))
 def test_damaged_npz(folder, data, position):
     buffer = io.BytesIO()
     np.savez(buffer, points=np.arange(40.0).reshape(20, 2))
-    original = bytearray(buffer.getvalue())
-    start = position % len(original)
-    original[start:start + len(data)] = data
-    path = folder / "damaged.npz"
-    path.write_bytes(bytes(original))
-    cloud_or_tdakit_error(path)
+    cloud_or_tdakit_error(overwritten(buffer.getvalue(), data, position, folder / "damaged.npz"))
 
 
 @pytest.mark.entry("load_cloud")
@@ -118,12 +122,7 @@ def test_damaged_npz(folder, data, position):
 def test_damaged_npy(folder, data, position):
     buffer = io.BytesIO()
     np.save(buffer, np.arange(60.0).reshape(20, 3))
-    original = bytearray(buffer.getvalue())
-    start = position % len(original)
-    original[start:start + len(data)] = data
-    path = folder / "damaged.npy"
-    path.write_bytes(bytes(original))
-    cloud_or_tdakit_error(path)
+    cloud_or_tdakit_error(overwritten(buffer.getvalue(), data, position, folder / "damaged.npy"))
 
 
 # -- run files ----------------------------------------------------------------------------------
