@@ -24,6 +24,7 @@ import tempfile
 from pathlib import Path
 
 from tdakit.errors import TdakitError
+from tdakit.io._atomic import _sync_folder, write_table  # noqa: F401  (write_table: the CLI's table writer)
 
 STAGING_PREFIX = ".tdakit-partial-"
 
@@ -168,26 +169,6 @@ class Staging:
             published.append(self.out / name)
         _sync_folder(self.out)
         return published
-
-
-def _sync_folder(folder: Path) -> None:
-    try:
-        handle = os.open(folder, os.O_RDONLY)
-    except OSError:
-        return
-    try:
-        os.fsync(handle)
-    except OSError:
-        pass
-    finally:
-        os.close(handle)
-
-
-def write_table(table, path: Path) -> None:
-    """Write a feature table as CSV, completely or not at all (the io layer's atomic writer)."""
-    from tdakit.io._atomic import write_table as write_atomically
-
-    write_atomically(table, path)
 
 
 FIGURE_ERRORS = (OSError, ValueError, RuntimeError, AttributeError, TypeError, MemoryError)

@@ -13,8 +13,6 @@ from __future__ import annotations
 
 import datetime
 import json
-import os
-import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -130,11 +128,7 @@ def _read(manifest: Path, strict: bool) -> dict | None:
 
 
 def _write_json(path: Path, record: dict) -> None:
-    handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".partial")
-    try:
-        with os.fdopen(handle, "w") as stream:
-            json.dump(record, stream, indent=1)
-        os.replace(temporary, path)
-    except BaseException:
-        Path(temporary).unlink(missing_ok=True)
-        raise
+    from tdakit.io._atomic import atomic_output
+
+    with atomic_output(path, what="checkpoint description") as temporary:
+        temporary.write_text(json.dumps(record, indent=1))

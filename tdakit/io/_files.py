@@ -10,7 +10,7 @@ from pathlib import Path
 
 from tdakit.errors import DataFileNotFoundError, InvalidDataError
 
-__all__ = ["as_path", "describe_size", "open_regular", "read_regular", "sha256_of"]
+__all__ = ["as_path", "describe_size", "open_regular", "sha256_of"]
 
 _KINDS = ((stat.S_ISFIFO, "a named pipe (FIFO)"), (stat.S_ISCHR, "a character device"),
           (stat.S_ISBLK, "a block device"), (stat.S_ISSOCK, "a socket"))
@@ -92,15 +92,6 @@ def open_regular(path: Path, what: str = "file", parameter: str = "source"):
     except BaseException:
         os.close(fd)
         raise
-
-
-def read_regular(path: Path, what: str = "file", parameter: str = "source") -> bytes:
-    """The whole content of the regular file ``path`` (see :func:`open_regular`)."""
-    with open_regular(path, what, parameter) as handle:
-        try:
-            return handle.read()
-        except OSError as exc:
-            raise _os_error(path, exc, what, parameter) from None
 
 
 def sha256_of(handle) -> str:
