@@ -3,6 +3,8 @@ import sys
 
 import pytest
 
+from tests.helpers import cli
+
 
 def run(*args, cwd):
     return subprocess.run([sys.executable, "-m", "tdakit", *args], capture_output=True, text=True,
@@ -92,14 +94,6 @@ def test_help_texts_explain_each_command(tmp_path):
 
 
 # -- in-process helpers (fast): main() returns the exit code, capsys holds what it printed ------------------
-def cli(capsys, *args):
-    from tdakit.cli.main import main
-
-    code = main([str(a) for a in args])
-    out, err = capsys.readouterr()
-    return code, out, err
-
-
 @pytest.fixture(scope="module")
 def ring_file(tmp_path_factory):
     import numpy as np

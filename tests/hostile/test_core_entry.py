@@ -32,7 +32,7 @@ from tdakit import (
 from tdakit.comparison import compare_catalogues
 from tdakit.config import ComplexOptions
 from tdakit.core.inference.confidence import band_at_level
-from tdakit.errors import InvalidDataError, InvalidParameterError, MemoryBudgetError, TdakitError
+from tdakit.errors import InvalidDataError, InvalidParameterError, MemoryBudgetError
 
 POINTS = np.random.default_rng(23).normal(size=(60, 2))
 CLOUD = load_cloud(POINTS)
@@ -253,6 +253,5 @@ def test_hostile_input_is_refused_naming_the_parameter(case, call, error, parame
         warnings.simplefilter("ignore", tdakit.errors.TdakitWarning)
         with pytest.raises(error) as info:
             call()
-    assert isinstance(info.value, TdakitError)
     assert info.value.parameter == parameter, f"{case}: parameter {info.value.parameter!r}: {info.value}"
     assert f"'{parameter}'" in str(info.value) or f" {parameter} " in str(info.value), str(info.value)

@@ -69,7 +69,7 @@ def run_or_tdakit_error(path):
             assert path.name in str(exc), str(exc)
             return None
         assert run.summary()
-        assert run.table is not None
+        assert len(run.table) == sum(len(run.diagrams[k]) for k in range(len(run.diagrams)))  # a row per class
     return run
 
 

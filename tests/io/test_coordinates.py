@@ -135,6 +135,8 @@ def test_cosmology_record_names_the_parameters():
     # (from memory); astropy's Planck18 realisation uses H0 = 67.66 and Om0 = 0.30966 (its docs).
     assert record["name"] == "Planck18" and record["class"] == "FlatLambdaCDM"
     assert record["H0"] == pytest.approx(67.66) and record["Om0"] == pytest.approx(Planck18.Om0)
+    # Tcmb0 = 2.7255 K (Fixsen 2009, ApJ 707, 916) and one massive neutrino of 0.06 eV, as in astropy's Planck18
+    # realisation (its docs; from memory).
     assert record["Tcmb0"] == pytest.approx(2.7255) and record["m_nu"] == pytest.approx([0.0, 0.0, 0.06])
     assert json.loads(json.dumps(record)) == record
     custom = cosmology_record("H0=70,Om0=0.3,Ode0=0.6")

@@ -23,6 +23,7 @@ MAIN = (0, 1, 2)  # the dimensions nearly every figure shows
 
 
 def _linear(rgb):
+    """sRGB to linear RGB: the IEC 61966-2-1:1999 transfer function (from memory)."""
     rgb = np.asarray(rgb, dtype=float)
     return np.where(rgb <= 0.04045, rgb / 12.92, ((rgb + 0.055) / 1.055) ** 2.4)
 
