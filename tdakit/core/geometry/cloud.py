@@ -206,16 +206,54 @@ def _duplicate_keys(array: NDArray[np.float64], metric: Metric | None) -> NDArra
     return rows.view(np.dtype((np.void, rows.dtype.itemsize * rows.shape[1]))).ravel()
 
 
+# Rows hashed at a time while looking for repeats (bounds the working copies to a few MiB).
+_HASH_ROWS = 1 << 16
+
+
+def _row_hashes(array: NDArray[np.float64], metric: Metric | None) -> NDArray[np.uint64]:
+    """A 64-bit hash of every row's duplicate key (equal keys give equal hashes), computed a block at a time."""
+    hashes = np.empty(array.shape[0], dtype=np.uint64)
+    for start in range(0, array.shape[0], _HASH_ROWS):
+        keys = _duplicate_keys(array[start:start + _HASH_ROWS], metric)
+        words = keys.view(np.uint64).reshape(keys.size, -1)
+        mixed = np.full(keys.size, 0x9E3779B97F4A7C15, dtype=np.uint64)
+        for column in words.T:  # FNV-style combination, then the splitmix64 finaliser (common practice)
+            mixed = (mixed ^ column) * np.uint64(0x100000001B3)
+        mixed ^= mixed >> np.uint64(30)
+        mixed *= np.uint64(0xBF58476D1CE4E5B9)
+        mixed ^= mixed >> np.uint64(27)
+        mixed *= np.uint64(0x94D049BB133111EB)
+        hashes[start:start + keys.size] = mixed ^ (mixed >> np.uint64(31))
+    return hashes
+
+
 def first_occurrences(array: NDArray[np.float64], metric: Metric | None = None) -> NDArray[np.intp]:
     """Sorted indices of the rows that repeat no earlier row: one representative of every distinct point.
 
     Rows are compared exactly, except for sky positions and cosine directions, compared as unit vectors
     to ``UNIT_VECTOR_TOLERANCE``, and periodic coordinates, compared after wrapping the box side to 0.
+    Memory: about 25 bytes a row (a hash, its sort order and the sorted hashes); only rows whose hash
+    another row shares are compared in full.
     """
-    if array.shape[0] == 0:
+    n = array.shape[0]
+    if n == 0:
         return np.zeros(0, dtype=np.intp)
-    _, first = np.unique(_duplicate_keys(array, metric), return_index=True)
-    return np.sort(first).astype(np.intp)
+    hashes = _row_hashes(array, metric)
+    order = np.argsort(hashes, kind="stable")
+    hashes = hashes[order]
+    shared = np.zeros(n, dtype=bool)
+    shared[1:] = hashes[1:] == hashes[:-1]
+    del hashes
+    shared[:-1] |= shared[1:]
+    if not shared.any():
+        return np.arange(n, dtype=np.intp)
+    suspects = np.sort(order[shared])
+    del order, shared
+    _, first = np.unique(_duplicate_keys(array[suspects], metric), return_index=True)
+    keep = np.ones(n, dtype=bool)
+    keep[suspects] = False
+    keep[suspects[first]] = True
+    return np.flatnonzero(keep).astype(np.intp)
 
 
 def count_duplicates(array: NDArray[np.float64], metric: Metric | None = None) -> int:
