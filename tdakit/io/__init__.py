@@ -1,7 +1,7 @@
 """Reading point clouds from arrays, DataFrames and files; writing and reading run files."""
 
 from tdakit.io._atomic import atomic_output, write_table
-from tdakit.io.catalogues import CATALOGUE_FORMATS, read_catalogue
+from tdakit.io.catalogues import CATALOGUE_FORMATS, catalogue_to_npy, read_catalogue
 from tdakit.io.coordinates import (
     SkyConversion,
     comoving_distance,
@@ -20,6 +20,7 @@ __all__ = [
     "RUN_SUFFIX",
     "SkyConversion",
     "atomic_output",
+    "catalogue_to_npy",
     "comoving_distance",
     "cosmology_record",
     "load_cloud",

@@ -5,6 +5,7 @@ their format is read.
 """
 
 from tdakit.io.catalogues._formats import MissingExtraError
+from tdakit.io.catalogues.convert import catalogue_to_npy
 from tdakit.io.catalogues.loading import MixedUnitsWarning, is_catalogue_request, load_catalogue
 from tdakit.io.catalogues.reading import (
     CATALOGUE_FORMATS,
@@ -23,6 +24,7 @@ __all__ = [
     "MixedUnitsWarning",
     "RowFilter",
     "catalogue_format",
+    "catalogue_to_npy",
     "is_catalogue_request",
     "load_catalogue",
     "parse_where",

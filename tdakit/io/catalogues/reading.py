@@ -148,25 +148,32 @@ def read_catalogue(
     MemoryBudgetError
         The rows to keep would take more than half of the machine's (or container's) memory as float64.
     """
+    return read_table(path, columns=columns, where=where, dataset=dataset, file_format=file_format,
+                      drop_missing=drop_missing, chunk_rows=chunk_rows)
+
+
+def read_table(path, *, columns, where, dataset, file_format, drop_missing, chunk_rows, allocate=None,
+               function: str = _FN) -> CatalogueTable:
+    """:func:`read_catalogue` into the array ``allocate(n_rows, n_columns)`` gives (default: memory)."""
     path = Path(path)
     fmt = catalogue_format(path, file_format)
     if fmt is None:
-        raise fail("source", _FN, f"a FITS, HDF5 or Parquet file (suffixes {_suffixes()}) or file_format= given",
+        raise fail("source", function, f"a FITS, HDF5 or Parquet file (suffixes {_suffixes()}) or file_format= given",
                    str(path))
     if not path.is_file():
         raise DataFileNotFoundError(
             f"The 'source' file {str(path)!r} does not exist (working directory {os.getcwd()!r}).", parameter="source")
-    drop_missing = check_bool(drop_missing, "drop_missing", _FN)
-    chunk_rows = check_int(chunk_rows, "chunk_rows", _FN, low=1)
-    row_filter = None if where is None else parse_where(where, function=_FN)
+    drop_missing = check_bool(drop_missing, "drop_missing", function)
+    chunk_rows = check_int(chunk_rows, "chunk_rows", function, low=1)
+    row_filter = None if where is None else parse_where(where, function=function)
     with SOURCES[fmt](path, dataset) as source:
-        chosen = _choose_columns(source, columns)
-        _check_filter_columns(source, row_filter)
+        chosen = _choose_columns(source, columns, function)
+        _check_filter_columns(source, row_filter, function)
         if hasattr(source, "check_lengths"):
             source.check_lengths(list(dict.fromkeys(chosen + (row_filter.columns if row_filter else ()))))
         _warn_if_decompressing(source, path, len(chosen))
         try:
-            values, dropped = _fill(source, chosen, row_filter, drop_missing, chunk_rows)
+            values, dropped = _fill(source, chosen, row_filter, drop_missing, chunk_rows, allocate)
         except (OSError, ValueError, RuntimeError) as exc:  # h5py, astropy; pyarrow's errors subclass these
             if isinstance(exc, TdakitError):
                 raise
@@ -181,14 +188,14 @@ def _suffixes() -> str:
     return ", ".join(s for group in CATALOGUE_FORMATS.values() for s in group)
 
 
-def _choose_columns(source, columns) -> tuple[str, ...]:
+def _choose_columns(source, columns, function: str = _FN) -> tuple[str, ...]:
     names = source.names
     if columns is None:
         chosen = names
     elif isinstance(columns, (str, int)) or not hasattr(columns, "__iter__") or not list(columns):
-        raise fail("columns", _FN, "a non-empty list of column names or positions", columns)
+        raise fail("columns", function, "a non-empty list of column names or positions", columns)
     else:
-        chosen = tuple(_column_name(c, names, source) for c in columns)
+        chosen = tuple(_column_name(c, names, source, function) for c in columns)
     if not chosen:
         raise InvalidDataError(f"The table ({source.label}) of {str(source.path)!r} has no columns.",
                                parameter="source")
@@ -197,13 +204,13 @@ def _choose_columns(source, columns) -> tuple[str, ...]:
     return chosen
 
 
-def _column_name(column, names, source) -> str:
+def _column_name(column, names, source, function: str = _FN) -> str:
     if isinstance(column, (int, np.integer)) and not isinstance(column, bool):
         if not 0 <= column < len(names):
-            raise fail("columns", _FN, f"positions in [0, {len(names) - 1}]", column)
+            raise fail("columns", function, f"positions in [0, {len(names) - 1}]", column)
         return names[int(column)]
     if column not in names:
-        raise fail("columns", _FN, f"names of columns of {source.label} in the file; valid names: {listed(names)}",
+        raise fail("columns", function, f"names of columns of {source.label} in the file; valid names: {listed(names)}",
                    column)
     return column
 
@@ -221,13 +228,13 @@ def _check_numeric(source, name: str, parameter: str, kinds: str) -> None:
             f"with columns=[...].", parameter=parameter)
 
 
-def _check_filter_columns(source, row_filter: RowFilter | None) -> None:
+def _check_filter_columns(source, row_filter: RowFilter | None, function: str = _FN) -> None:
     if row_filter is None:
         return
     for name in row_filter.columns:
         if name not in source.names:
             raise InvalidParameterError(
-                f"The 'where' parameter of {_FN} names column {name!r}, which {source.label} of "
+                f"The 'where' parameter of {function} names column {name!r}, which {source.label} of "
                 f"{str(source.path)!r} does not have; valid names: {listed(source.names)}.", parameter="where")
         _check_numeric(source, name, "where", "iufb")
 
@@ -243,15 +250,20 @@ def _warn_if_decompressing(source, path: Path, n_columns: int) -> None:
             f"first to read it in chunks.", LargeReadWarning, stacklevel=4)
 
 
-def _fill(source, chosen, row_filter, drop_missing, chunk_rows):
-    """Allocate the output once and fill it chunk by chunk; return it (trimmed) and the rows dropped."""
+def _fill(source, chosen, row_filter, drop_missing, chunk_rows, allocate=None):
+    """Allocate the output once and fill it chunk by chunk; return it and the rows dropped.
+
+    ``allocate(n_rows, n_columns)`` gives the output (default: an array in memory, refused above half the
+    memory); the rows are counted first when a filter or ``drop_missing`` may remove some.
+    """
     filter_columns = list(row_filter.columns) if row_filter else []
-    if row_filter is None:
+    if row_filter is None and not drop_missing:
         n_out = source.n_rows
     else:
-        passes = _passing(source, filter_columns, row_filter, drop_missing, chunk_rows)
+        counted = list(dict.fromkeys(filter_columns + (list(chosen) if drop_missing else [])))
+        passes = _passing(source, counted, row_filter, drop_missing, chunk_rows, chosen if drop_missing else ())
         n_out = sum(int(keep.sum()) for _, keep, _, _ in passes)
-    out = _allocate(source, n_out, len(chosen), row_filter)
+    out = (allocate or (lambda n, m: _allocate(source, n, m, row_filter)))(n_out, len(chosen))
     position = dropped = 0
     wanted = list(dict.fromkeys(filter_columns + list(chosen)))
     for _, keep, chunk, lost in _passing(source, wanted, row_filter, drop_missing, chunk_rows, chosen):

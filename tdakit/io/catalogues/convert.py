@@ -1,0 +1,128 @@
+"""A catalogue's chosen columns written to a memory-mappable ``.npy`` file, chunk by chunk.
+
+For clouds larger than one process's memory: every worker of a cluster then maps its own rows of the
+``.npy`` file (:func:`tdakit.distributed.select_landmarks_distributed`), so no process reads the whole table.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+from pathlib import Path
+
+import numpy as np
+
+from tdakit._validation import fail
+from tdakit.errors import InvalidDataError
+from tdakit.io._atomic import atomic_output
+from tdakit.io._files import as_path
+from tdakit.io.catalogues.loading import _enough_rows
+from tdakit.io.catalogues.reading import DEFAULT_CHUNK_ROWS, read_table
+from tdakit.io.coordinates import SkyConversion
+
+__all__ = ["catalogue_to_npy"]
+
+_FN = "catalogue_to_npy"
+
+
+def catalogue_to_npy(
+    source: str | os.PathLike,
+    destination: str | os.PathLike,
+    *,
+    columns: list | tuple | None = None,
+    where: str | None = None,
+    dataset: str | int | None = None,
+    file_format: str | None = None,
+    drop_missing: bool = False,
+    sky=None,
+    chunk_rows: int = DEFAULT_CHUNK_ROWS,
+) -> dict:
+    """Write chosen columns of a FITS, HDF5 or Parquet table to a float64 ``.npy`` file without holding the table.
+
+    The rows are read in chunks (as by :func:`tdakit.load_cloud`) straight into a memory-mapped
+    ``.npy`` file; sky positions are converted in place. The file holds exactly the points
+    ``load_cloud(source, columns=..., where=..., sky=...)`` would hold, in the same order, so its row
+    numbers are the cloud's. A description (source checksum, columns, filter, units, conversion) is
+    written beside it as ``<destination>.json``. Both files appear complete or not at all.
+
+    Parameters
+    ----------
+    source : str or path
+        The catalogue (see :func:`tdakit.io.read_catalogue` for the formats).
+    destination : str or path
+        The ``.npy`` file to write (its folder must exist; an existing file is replaced).
+    columns, where, dataset, file_format, drop_missing
+        As in :func:`tdakit.load_cloud`.
+    sky : str, mapping or SkyConversion, optional
+        Convert (RA, Dec, parallax or redshift) columns to x, y, z, as in :func:`tdakit.load_cloud`.
+    chunk_rows : int, default=65536
+        Rows read at a time.
+
+    Returns
+    -------
+    dict
+        The description written to ``<destination>.json``: ``source``, ``source_sha256``, ``columns``
+        (of the file written), ``read_columns``, ``where``, ``dataset``, ``drop_missing``, ``n_rows``
+        (rows written), ``n_rows_in_file``, ``units``, ``unit``, ``sky`` (the conversion's record).
+
+    Notes
+    -----
+    Memory: a few chunks of rows in this process; the output's pages belong to the operating
+    system's file cache. With a filter or ``drop_missing`` the table is read twice (a first pass
+    counts the rows kept). Redshift conversion evaluates the distance spline over the kept rows'
+    whole redshift range, as :func:`tdakit.load_cloud` does, so the positions are identical to its.
+    """
+    from tdakit.io.readers import _sha256
+
+    path, target = as_path(source), _destination(destination)
+    conversion = None if sky is None else SkyConversion.from_value(sky)
+    checksum = _sha256(path)
+    allocated: list[tuple[int, int]] = []
+
+    def allocate(n_rows: int, n_columns: int) -> np.memmap:
+        if conversion is not None and n_columns != 3:
+            raise fail("columns", _FN, "three columns (RA, Dec, parallax or redshift) with sky=...", columns)
+        allocated.append((n_rows, n_columns))
+        return np.lib.format.open_memmap(temporary, mode="w+", dtype=np.float64, shape=(n_rows, n_columns))
+
+    with atomic_output(target, what="converted catalogue") as temporary:
+        table = read_table(path, columns=columns, where=where, dataset=dataset, file_format=file_format,
+                           drop_missing=drop_missing, chunk_rows=chunk_rows, function=_FN, allocate=allocate)
+        values = table.values
+        if values.shape != allocated[0]:
+            raise InvalidDataError(f"The file {str(path)!r} changed while it was read; convert it again.",
+                                   parameter="source")
+        _enough_rows(table, path, where)
+        if conversion is not None:
+            conversion.convert(values, table.units, chunk_rows=chunk_rows)
+        values.flush()
+        del values
+    record = _record(path, checksum, table, where, dataset, drop_missing, conversion)
+    description = target.with_name(target.name + ".json")
+    with atomic_output(description, what="description of the converted catalogue") as temporary:
+        temporary.write_text(json.dumps(record, indent=2), encoding="utf-8")
+    return record
+
+
+def _destination(destination) -> Path:
+    target = as_path(destination) if isinstance(destination, (str, bytes, os.PathLike)) else None
+    if target is None or target.suffix.lower() != ".npy":
+        raise fail("destination", _FN, "a path ending in .npy", destination)
+    if target.is_dir():
+        raise fail("destination", _FN, "a file path, not a folder", str(target))
+    return target
+
+
+def _record(path, checksum, table, where, dataset, drop_missing, conversion) -> dict:
+    unit = conversion.unit if conversion is not None else _shared_unit(table.units)
+    return {"source": str(path.resolve()), "source_sha256": checksum, "file_format": table.file_format,
+            "columns": ["x", "y", "z"] if conversion is not None else list(table.columns),
+            "read_columns": list(table.columns), "where": where, "dataset": dataset,
+            "drop_missing": bool(drop_missing), "n_rows": int(table.values.shape[0]),
+            "n_rows_in_file": int(table.n_rows), "n_dropped_missing": int(table.n_dropped_missing),
+            "units": list(table.units), "unit": unit, "sky": None if conversion is None else conversion.to_dict()}
+
+
+def _shared_unit(units) -> str | None:
+    named = {u for u in units if u is not None}
+    return units[0] if len(named) == 1 and None not in units else None
