@@ -111,3 +111,23 @@ def test_conversion_holds_a_few_chunks_not_the_table(tmp_path):
         peak = json.loads(result.stdout)
         written = np.load(tmp_path / "b.npy", mmap_mode="r").nbytes
         assert peak < 0.1 * written, (where, peak, written)
+
+
+def test_hostile_destinations_and_sources(tmp_path, halos):
+    from tdakit.errors import DataFileNotFoundError
+
+    write_fits(tmp_path / "h.fits", halos)
+    (tmp_path / "folder.npy").mkdir()
+    with pytest.raises(InvalidParameterError, match="'destination' .* a file path, not a folder"):
+        catalogue_to_npy(tmp_path / "h.fits", tmp_path / "folder.npy")
+    with pytest.raises(DataFileNotFoundError):
+        catalogue_to_npy(tmp_path / "h.fits", tmp_path / "missing" / "out.npy")
+    with pytest.raises(DataFileNotFoundError):
+        catalogue_to_npy(tmp_path / "nothing.fits", tmp_path / "out.npy")
+    with pytest.raises(InvalidParameterError, match="'destination'"):
+        catalogue_to_npy(tmp_path / "h.fits", 42)
+    old = np.arange(6.0).reshape(3, 2)
+    np.save(tmp_path / "keep.npy", old)
+    with pytest.raises(InvalidParameterError):
+        catalogue_to_npy(tmp_path / "h.fits", tmp_path / "keep.npy", columns=["nope"])
+    np.testing.assert_array_equal(np.load(tmp_path / "keep.npy"), old)  # a failed conversion leaves the old file
