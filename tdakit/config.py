@@ -13,7 +13,8 @@ from dataclasses import asdict, dataclass, field, fields
 
 from tdakit._validation import check_bool, check_choice, check_dtm_power, check_float, check_int, fail
 
-__all__ = ["AnalysisOptions", "BandOptions", "ComplexOptions", "SamplingOptions", "StudyOptions", "parse_memory_size"]
+__all__ = ["AnalysisOptions", "BandOptions", "ComplexOptions", "RunOptions", "SamplingOptions", "StudyOptions",
+           "parse_memory_size"]
 
 SAMPLING_METHODS = ("core_maxmin", "density", "maxmin", "random")
 FILTRATION_NAMES = ("alpha", "dtm", "rips", "witness")
@@ -208,6 +209,30 @@ class AnalysisOptions(_Options):
     def __post_init__(self):
         for name, cls in (("sampling", SamplingOptions), ("complex", ComplexOptions), ("band", BandOptions)):
             _set(self, name, _nested(cls, getattr(self, name), name, "AnalysisOptions"))
+
+
+@dataclass(frozen=True)
+class RunOptions(_Options):
+    """Where a run computes (the ``[run]`` section of a config file); nothing here changes its numbers.
+
+    Kept apart from :class:`AnalysisOptions`, which holds what decides the numbers (the run file's options,
+    the checkpoint's identity and the explorer's generated controls): the same run on a cluster or on this
+    machine has the same options.
+
+    ``scheduler``: a Dask scheduler address such as ``"tcp://host:8786"``, or ``"local"``, for
+    :func:`tdakit.analyze`'s ``scheduler=``; None (or ``"none"``, as TOML has no null) runs on this machine.
+    Only the text is checked here; whether a scheduler answers is checked when the run starts.
+    """
+
+    scheduler: str | None = None
+
+    def __post_init__(self):
+        value = self.scheduler
+        if value is not None and (not isinstance(value, str) or not value.strip()):
+            raise fail("scheduler", "RunOptions", "none, \"local\" or a Dask scheduler address such as "
+                       "\"tcp://host:8786\"", value)
+        if value is not None:
+            _set(self, "scheduler", None if value.strip().lower() == "none" else value.strip())
 
 
 @dataclass(frozen=True)

@@ -6,6 +6,7 @@ else chains the steps.
 
 from __future__ import annotations
 
+import dataclasses
 import datetime
 import platform
 import time
@@ -21,7 +22,7 @@ from tdakit._memory import PeakMemory
 from tdakit._validation import fail
 from tdakit.config import AnalysisOptions
 from tdakit.core.geometry.cloud import Cloud
-from tdakit.core.geometry.landmarks import Landmarks
+from tdakit.core.geometry.landmarks import Landmarks, select_landmarks
 from tdakit.core.inference.bands import Band
 from tdakit.core.inference.confidence import confidence_band
 from tdakit.core.inference.replicates import root_seed
@@ -30,7 +31,7 @@ from tdakit.core.topology.diagrams import Diagrams
 from tdakit.core.topology.filtrations import check_filtration_for, compute_diagrams
 from tdakit.errors import InvalidDataError
 
-__all__ = ["RunResult", "analyze", "auto_band", "check_options", "rerun", "PREVIEW_POINTS"]
+__all__ = ["RunResult", "RunSteps", "analyze", "auto_band", "check_options", "rerun", "PREVIEW_POINTS"]
 
 PREVIEW_POINTS = 20_000
 _FN = "analyze"
@@ -114,8 +115,6 @@ class RunResult:
 
     def at_level(self, level: float) -> RunResult:
         """The same run with its band re-read at another level (instant: no replicate is recomputed)."""
-        import dataclasses
-
         from tdakit.core.inference.confidence import band_at_level
 
         if self.band is None:
@@ -159,6 +158,55 @@ def _step_seeds(seed: int, scheme: int = SEED_SCHEME) -> list[int]:
     return seeds
 
 
+@dataclass(frozen=True)
+class RunSteps:
+    """The functions behind a run's landmark and witness steps, and the executor of its replicates.
+
+    :func:`analyze` runs with the in-memory functions (the default) or, with ``scheduler=``, with those
+    :func:`tdakit.distributed.scheduler.SchedulerSession.steps` builds for a Dask cluster; every function
+    returns what the in-memory one would, so the numbers do not depend on where the steps run.
+
+    Attributes
+    ----------
+    landmarks : callable
+        ``f(cloud, n_landmarks, *, method, rng, **options) -> Landmarks``, as :func:`select_landmarks`.
+    lazy_witness_edges : callable or None
+        As :func:`witness_edge_values`, for the lazy witness complex (passed to :func:`compute_diagrams`);
+        None computes the edge values in this process. gudhi's weak and strong witness complexes and every
+        other complex are built in this process.
+    replicates : object with ``submit`` or None
+        The executor of the band's replicates (None: the ``n_jobs`` and ``executor`` given to :func:`analyze`).
+    cluster_methods : tuple of str
+        The landmark methods ``landmarks`` runs on a cluster (recorded in the provenance; the others run here).
+    """
+
+    landmarks: Callable[..., Landmarks] = select_landmarks
+    lazy_witness_edges: Callable[..., NDArray[np.float64]] | None = None
+    replicates: object | None = None
+    cluster_methods: tuple[str, ...] = ()
+
+    def placement(self, options: AnalysisOptions) -> dict[str, str]:
+        """Where each step of a run with these (checked) options runs.
+
+        "cluster" (the scheduler's workers), "driver" (this machine: the process that called :func:`analyze`,
+        and for the replicates its ``n_jobs`` local processes) or "not used". ``"diagrams"`` is the complex
+        and its persistence, always built here.
+        """
+        sampling, complex_, band = options.sampling, options.complex, options.band
+
+        def where(on_cluster: bool, used: bool = True) -> str:
+            return "not used" if not used else ("cluster" if on_cluster else "driver")
+
+        lazy = complex_.filtration == "witness" and complex_.witness == "lazy"
+        return {"landmarks": where(sampling.method in self.cluster_methods, sampling.n_landmarks is not None),
+                "witness": where(lazy and self.lazy_witness_edges is not None, complex_.filtration == "witness"),
+                "diagrams": "driver",
+                "replicates": where(self.replicates is not None, band.method != "none")}
+
+
+IN_MEMORY = RunSteps()
+
+
 def analyze(
     cloud: Cloud,
     options: AnalysisOptions | dict | None = None,
@@ -196,9 +244,13 @@ def analyze(
         (0 of 1 at the start, 1 of 1 at the end) and ``"band"`` (replicates done of the
         total, first 0 of the total when the band starts).
     scheduler : str, optional
-        A Dask scheduler address or ``"local"``: the landmarks and the replicates run on that
-        cluster (same numbers), and provenance records the scheduler and its workers' versions
-        (see :mod:`tdakit.distributed.scheduler`).
+        A Dask scheduler address or ``"local"`` (see :mod:`tdakit.distributed.scheduler`): the
+        landmarks (methods the cluster offers, see ``tdakit.distributed.landmarks.DISTRIBUTED_METHODS``),
+        the lazy witness edge values (every point a witness) and the band's replicates run on that
+        cluster, with the numbers of the same run without a scheduler. The complex and its
+        persistence, gudhi's weak and strong witness complexes, other landmark methods and every
+        step on a precomputed distance matrix run in this process. ``provenance["scheduler"]``
+        records the address, the workers' versions and where each step ran (``"steps"``).
 
     Returns
     -------
@@ -209,21 +261,47 @@ def analyze(
     options = _check_combination(cloud, _check_options(options))
     if progress is not None and not callable(progress):
         raise fail("progress", _FN, "None or a callable progress(step, done, total)", progress)
-    if scheduler is not None:  # landmarks and replicates on a Dask cluster: all logic in tdakit/distributed/
-        from tdakit.distributed.scheduler import analyze_on_scheduler
-        return analyze_on_scheduler(scheduler, cloud, options, rng=rng, n_jobs=n_jobs, executor=executor,
-                                    progress=progress, checkpoint=checkpoint)
-    return _run(cloud, options, root_seed(rng, _FN), SEED_SCHEME, progress,
-                {"n_jobs": n_jobs, "executor": executor, "checkpoint": checkpoint})
+    if scheduler is not None and executor is not None:
+        raise fail("executor", _FN, "None when a scheduler is given (the scheduler's client runs the replicates)",
+                   executor)
+    seed = root_seed(rng, _FN)
+    run = {"n_jobs": n_jobs, "executor": executor, "checkpoint": checkpoint}
+    if scheduler is None:
+        return _run(cloud, options, seed, SEED_SCHEME, progress, run)
+    return _run_on_scheduler(scheduler, cloud, options, seed, progress, run)
 
 
-def _run(cloud, options, seed, scheme, progress, run) -> RunResult:
+def _run_on_scheduler(scheduler, cloud, options, seed, progress, run) -> RunResult:
+    """The run with the cluster's step functions; provenance records the cluster and where each step ran."""
+    from tdakit.distributed.scheduler import open_scheduler  # dask only when asked for
+
+    session = open_scheduler(scheduler, _FN)
+    try:
+        steps = _for_cloud(cloud, session.steps())
+        result = _run(cloud, options, seed, SEED_SCHEME, progress, run, steps)
+        record = {**session.record(), "steps": steps.placement(options)}
+    finally:
+        session.close()
+    return dataclasses.replace(result, provenance={**result.provenance, "scheduler": record})
+
+
+def _for_cloud(cloud: Cloud, steps: RunSteps) -> RunSteps:
+    """A precomputed distance matrix cannot be split over workers: its landmarks and witnesses stay here."""
+    if cloud.distance_matrix is None:
+        return steps
+    return dataclasses.replace(steps, landmarks=select_landmarks, lazy_witness_edges=None, cluster_methods=())
+
+
+def _run(cloud, options, seed, scheme, progress, run, steps: RunSteps = IN_MEMORY) -> RunResult:
     seeds = _step_seeds(seed, scheme)
     report = progress or (lambda step, done, total: None)
     timings: dict[str, float] = {}
+    if steps.replicates is not None:
+        run = {**run, "executor": steps.replicates}
     with PeakMemory() as memory:
-        marks = _landmarks(cloud, options, seeds[0], timings, report)
-        diagrams, band = _diagrams_and_band(cloud, marks, options, seeds, timings, report, run)
+        marks = _landmarks(cloud, options, seeds[0], timings, report, steps.landmarks)
+        diagrams, band = _diagrams_and_band(cloud, marks, options, seeds, timings, report, run,
+                                            steps.lazy_witness_edges)
     preview = _preview(cloud, seeds[3])
     points = cloud.points[marks.indices] if marks is not None else np.zeros((0, cloud.n_dims))
     info = provenance(cloud, options, seed)
@@ -232,22 +310,20 @@ def _run(cloud, options, seed, scheme, progress, run) -> RunResult:
                      {"bytes": memory.peak_bytes, "scope": memory.scope}, info)
 
 
-def _landmarks(cloud, options, seed, timings, report) -> Landmarks | None:
+def _landmarks(cloud, options, seed, timings, report, select) -> Landmarks | None:
     sampling = options.sampling
     if sampling.n_landmarks is None:
         return None
     start = time.perf_counter()
     report("landmarks", 0, 1)
-    from tdakit.distributed.scheduler import landmark_function  # in memory unless analyze(scheduler=...) runs
-
-    marks = landmark_function()(cloud, sampling.n_landmarks, method=sampling.method, rng=seed,
-                                **sampling.landmark_options())
+    marks = select(cloud, sampling.n_landmarks, method=sampling.method, rng=seed, **sampling.landmark_options())
     report("landmarks", 1, 1)
     timings["landmarks"] = time.perf_counter() - start
     return marks
 
 
-def _diagrams_and_band(cloud, marks, options, seeds, timings, report, run) -> tuple[Diagrams, Band | None]:
+def _diagrams_and_band(cloud, marks, options, seeds, timings, report, run,
+                       witness_edges) -> tuple[Diagrams, Band | None]:
     complex_, band_options = options.complex, options.band
     start = time.perf_counter()
     total = band_options.n_subsamples if band_options.method == "landscape" else band_options.n_boot
@@ -260,7 +336,8 @@ def _diagrams_and_band(cloud, marks, options, seeds, timings, report, run) -> tu
         timings["diagrams + band"] = time.perf_counter() - start
         return band.diagrams, band
     diagrams = compute_diagrams(cloud, landmarks=marks, filtration=complex_.filtration,
-                                max_dim=complex_.max_dim, rng=seeds[1], **complex_.diagram_options())
+                                max_dim=complex_.max_dim, rng=seeds[1], lazy_witness_edges=witness_edges,
+                                **complex_.diagram_options())
     report("diagrams", 1, 1)
     timings["diagrams"] = time.perf_counter() - start
     if band_options.method == "none":
@@ -311,8 +388,6 @@ def check_options(cloud: Cloud, options: AnalysisOptions | dict | None = None) -
 
 def _check_combination(cloud: Cloud, options: AnalysisOptions) -> AnalysisOptions:
     """Refuse options that cannot go together; record what a density run really computes."""
-    import dataclasses
-
     from tdakit.config import ComplexOptions, SamplingOptions
 
     if options.band.method == "auto":

@@ -358,12 +358,12 @@ def test_config_keys_are_all_documented_with_defaults(capsys):
     from dataclasses import fields
 
     from tdakit.cli.keys import config_keys_text
-    from tdakit.config import BandOptions, ComplexOptions, SamplingOptions, StudyOptions
+    from tdakit.config import BandOptions, ComplexOptions, RunOptions, SamplingOptions, StudyOptions
 
     code, text, _ = cli(capsys, "config-keys")
     assert code == 0 and text.strip() == config_keys_text()
     for section, cls in (("sampling", SamplingOptions), ("complex", ComplexOptions), ("band", BandOptions),
-                         ("study", StudyOptions)):
+                         ("run", RunOptions), ("study", StudyOptions)):
         block = text.split(f"[{section}]\n", 1)[1].split("\n\n", 1)[0]
         for field in fields(cls):
             if section == "study" and field.name in ("sampling", "complex", "band"):
@@ -392,3 +392,56 @@ def test_summary_shows_each_dimension_the_band_the_bound_and_the_verdict(ring_fi
     assert "Band: bootstrap, level 0.95, radius H0 " in out and "covers:" in out
     assert "Landmark bound: " in out
     assert "Verdict, features called real per dimension: H0 1 of 30, H1 1 of" in out
+
+
+# -- 7. where the run computes: --scheduler and the config key [run] scheduler -----------------------------------
+def _never_read(monkeypatch):
+    """Record every call of the CLI's catalogue reader instead of reading."""
+    from tdakit.cli import options
+
+    calls = []
+    monkeypatch.setattr(options, "load", lambda *args, **kwargs: calls.append(args))
+    return calls
+
+
+def _dead_address():
+    """A local TCP port nobody listens on (bound, then closed: refused at once)."""
+    import socket
+
+    with socket.socket() as sock:
+        sock.bind(("127.0.0.1", 0))
+        return f"tcp://127.0.0.1:{sock.getsockname()[1]}"
+
+
+def test_a_dead_scheduler_is_refused_before_the_catalogue_is_read(ring_file, tmp_path, capsys, monkeypatch):
+    pytest.importorskip("distributed")
+    calls = _never_read(monkeypatch)
+    dead = _dead_address()
+    code, _, err = cli(capsys, "analyze", ring_file, *FAST, "--scheduler", dead, "--out", tmp_path)
+    assert code == 1 and calls == [] and "Traceback" not in err
+    assert err.startswith("tdakit: error: --scheduler must be the address of a running Dask scheduler") and dead in err
+    (tmp_path / "c.toml").write_text(f'[run]\nscheduler = "{dead}"\n')
+    code, _, err = cli(capsys, "analyze", ring_file, *FAST, "--config", tmp_path / "c.toml", "--out", tmp_path)
+    assert code == 1 and calls == [] and "[run] scheduler (in --config) must be" in err
+    code, _, err = cli(capsys, "analyze", ring_file, *FAST, "--scheduler", " ", "--out", tmp_path)
+    assert code == 1 and calls == [] and "--scheduler must be none" in err and "RunOptions" not in err
+
+
+def test_the_scheduler_flag_wins_over_the_config_key(ring_file, tmp_path, capsys):
+    from tdakit.io import load_run
+
+    (tmp_path / "c.toml").write_text(f'[run]\nscheduler = "{_dead_address()}"\n')
+    code, _, err = cli(capsys, "analyze", ring_file, *FAST, "--config", tmp_path / "c.toml", "--scheduler", "none",
+                       "--quiet", "--out", tmp_path)
+    assert code == 0, err
+    assert "scheduler" not in load_run(tmp_path / "ring.tdkrun").provenance
+    (tmp_path / "c.toml").write_text('[run]\nschedule = "local"\n')
+    code, _, err = cli(capsys, "analyze", ring_file, *FAST, "--config", tmp_path / "c.toml", "--out", tmp_path)
+    assert code == 1 and "'schedule'" in err and "scheduler" in err
+
+
+def test_config_keys_list_the_scheduler(capsys):
+    code, text, _ = cli(capsys, "config-keys")
+    block = text.split("[run]\n", 1)[1].split("\n\n", 1)[0]
+    assert code == 0 and block.split()[0] == "scheduler" and "tcp://host:8786" in block and "--scheduler" in block
+    assert "[band], [run]" in text

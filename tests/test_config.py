@@ -4,7 +4,7 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-from tdakit.config import AnalysisOptions, BandOptions, ComplexOptions, SamplingOptions, StudyOptions
+from tdakit.config import AnalysisOptions, BandOptions, ComplexOptions, RunOptions, SamplingOptions, StudyOptions
 from tdakit.errors import InvalidParameterError
 
 
@@ -39,6 +39,9 @@ def test_study_options_round_trip_and_sort_counts():
     (lambda: AnalysisOptions(sampling="maxmin"), "sampling"),
     (lambda: AnalysisOptions.from_dict({"sampling": {"n_landmark": 5}}), "n_landmark"),
     (lambda: AnalysisOptions.from_dict({"bands": {}}), "bands"),
+    (lambda: RunOptions(scheduler=""), "scheduler"),
+    (lambda: RunOptions(scheduler=8786), "scheduler"),
+    (lambda: RunOptions.from_dict({"schedulers": "local"}), "schedulers"),
 ])
 def test_bad_options_name_the_parameter(build, name):
     with pytest.raises(InvalidParameterError) as info:
@@ -69,3 +72,13 @@ def test_an_unlimited_budget_survives_plain_dicts():
     options = ComplexOptions(memory_budget="inf")
     assert options.to_dict()["memory_budget"] == "inf" and options.diagram_options()["memory_budget"] == float("inf")
     assert ComplexOptions.from_dict(options.to_dict()) == options
+
+
+@pytest.mark.parametrize("given, kept", [(None, None), ("none", None), (" None ", None), ("local", "local"),
+                                         (" tcp://10.0.0.5:8786 ", "tcp://10.0.0.5:8786")])
+def test_the_run_section_holds_the_scheduler_apart_from_the_numbers(given, kept):
+    options = RunOptions.from_dict({"scheduler": given})
+    assert options.scheduler == kept and RunOptions.from_dict(options.to_dict()) == options
+    # where a run computes does not change its numbers: not an AnalysisOptions field (run files, checkpoints,
+    # the explorer's generated controls)
+    assert "scheduler" not in str(AnalysisOptions().to_dict())

@@ -211,3 +211,57 @@ def test_resampling_bands_with_core_landmarks_fit_the_kept_share_of_each_sample(
         warnings.simplefilter("ignore")
         run = tdakit.analyze(cloud, options, rng=1)
     assert run.band.method == "landscape" and np.all(np.isfinite(run.band.radii))
+
+
+def test_lazy_witness_edges_computed_elsewhere_give_the_same_diagrams(circle_file):
+    cloud = tdakit.load_cloud(circle_file)
+    marks = tdakit.select_landmarks(cloud, 30, rng=2)
+    calls = []
+
+    def elsewhere(cloud_, landmarks, *, nu, max_scale):
+        calls.append((nu, max_scale))
+        return tdakit.witness_edge_values(cloud_, landmarks, nu=nu, max_scale=max_scale)
+
+    for nu, cap in ((1, None), (2, 0.4)):
+        here = tdakit.compute_diagrams(cloud, landmarks=marks, filtration="witness", witness_nu=nu, max_scale=cap)
+        given = tdakit.compute_diagrams(cloud, landmarks=marks, filtration="witness", witness_nu=nu, max_scale=cap,
+                                        lazy_witness_edges=elsewhere)
+        assert_same(given, here)
+    assert calls == [(1, np.inf), (2, 0.4)]
+    tdakit.compute_diagrams(cloud, landmarks=marks, filtration="rips", lazy_witness_edges=elsewhere)
+    assert len(calls) == 2  # only the lazy witness complex asks for them
+
+
+@pytest.mark.parametrize("function", [
+    "not callable",
+    lambda cloud, landmarks, **_: np.zeros((3, 3)),
+    lambda cloud, landmarks, **_: np.triu(np.ones((30, 30)), 1),
+    lambda cloud, landmarks, **_: np.full((30, 30), np.nan),
+], ids=["not callable", "wrong shape", "not symmetric", "NaN"])
+def test_lazy_witness_edges_that_cannot_be_are_refused(circle_file, function):
+    cloud = tdakit.load_cloud(circle_file)
+    marks = tdakit.select_landmarks(cloud, 30, rng=2)
+    with pytest.raises(InvalidParameterError) as caught:
+        tdakit.compute_diagrams(cloud, landmarks=marks, filtration="witness", lazy_witness_edges=function)
+    assert caught.value.parameter == "lazy_witness_edges" and "'lazy_witness_edges'" in str(caught.value)
+
+
+def test_run_steps_say_where_each_step_runs(circle_file):
+    from tdakit.pipeline import RunSteps, check_options
+
+    cloud = tdakit.load_cloud(circle_file)
+    cluster = RunSteps(lazy_witness_edges=tdakit.witness_edge_values, replicates=object(),
+                       cluster_methods=("maxmin", "random"))
+    lazy = check_options(cloud, {"complex": {"filtration": "witness"}, "band": {"method": "bootstrap"}})
+    assert cluster.placement(lazy) == {"landmarks": "cluster", "witness": "cluster", "diagrams": "driver",
+                                       "replicates": "cluster"}
+    strong = check_options(cloud, {"sampling": {"method": "density"},
+                                   "complex": {"filtration": "witness", "witness": "strong"},
+                                   "band": {"method": "none"}})
+    assert cluster.placement(strong) == {"landmarks": "driver", "witness": "driver", "diagrams": "driver",
+                                         "replicates": "not used"}
+    density = check_options(cloud, {"band": {"method": "density"}})
+    assert cluster.placement(density) == {"landmarks": "not used", "witness": "not used", "diagrams": "driver",
+                                          "replicates": "cluster"}
+    assert RunSteps().placement(lazy) == {"landmarks": "driver", "witness": "driver", "diagrams": "driver",
+                                          "replicates": "driver"}

@@ -75,9 +75,11 @@ def analyze(args) -> int:
 
     config = settings.read_toml(args.config) if args.config else {}
     options = settings.analysis_options(args, config)
+    where = settings.run_options(args, config)
     check_jobs(args)
     formats = figure_formats(args)
     out = prepare_folder(args.out)
+    settings.check_scheduler(args, where)  # a dead address is refused before a long read
     stem = Path(args.file).stem
     cloud = settings.load(args.file, settings.input_settings(args, config))
     print(f"Read {cloud.n_points} points in {cloud.n_dims} dimensions from {args.file} ({cloud.metric.name} metric).")
@@ -92,7 +94,7 @@ def analyze(args) -> int:
             with step_bars(not args.quiet) as report:
                 report.reused["band"] = point.reused
                 run = run_analysis(cloud, options, rng=point.seed, n_jobs=args.jobs, progress=report,
-                                   checkpoint=point.data, scheduler=args.scheduler)
+                                   checkpoint=point.data, scheduler=where.scheduler)
             written = publish_run(run, out, stem, formats, args)
         except BaseException:
             point.forget_if_empty()

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from dataclasses import MISSING, fields
 
-from tdakit.config import BandOptions, ComplexOptions, SamplingOptions, StudyOptions
+from tdakit.config import BandOptions, ComplexOptions, RunOptions, SamplingOptions, StudyOptions
 
 INPUT_HELP = {
     "file": ("(required by study)", "the catalogue file, relative to the config file's folder"),
@@ -51,6 +51,10 @@ OPTION_HELP = {
         "n_subsamples": "subsamples behind the landscape band",
         "n_levels": "landscape levels kept by the landscape band",
     },
+    "run": {
+        "scheduler": "analyze: Dask scheduler address (\"tcp://host:8786\") or \"local\"; runs landmarks, lazy "
+                     "witness edges and replicates there, same numbers (--scheduler)",
+    },
     "study": {
         "methods": "sampling methods compared",
         "counts": "landmark counts compared",
@@ -61,7 +65,8 @@ OPTION_HELP = {
     },
 }
 
-_CLASSES = {"sampling": SamplingOptions, "complex": ComplexOptions, "band": BandOptions, "study": StudyOptions}
+_CLASSES = {"sampling": SamplingOptions, "complex": ComplexOptions, "band": BandOptions, "run": RunOptions,
+            "study": StudyOptions}
 _NESTED = ("sampling", "complex", "band")
 
 
@@ -69,6 +74,8 @@ def _default(field) -> str:
     value = field.default if field.default is not MISSING else None
     if field.name == "memory_budget":
         return "a quarter of the machine's (or container's) memory"
+    if field.name == "scheduler":
+        return '"none" (this machine)'
     if value is None:
         return "none (chosen from the data)" if field.name.endswith(("neighbors", "size", "bandwidth", "resolution",
                                                                      "budget")) else "none"
@@ -103,7 +110,7 @@ def documented_keys() -> dict[str, dict[str, tuple[str, str]]]:
 def config_keys_text() -> str:
     """The help topic: every section and key of a config file, with its default and meaning."""
     lines = ["Config files are TOML. Sections and keys (default, meaning); a command-line option overrides the same",
-             "key. 'tdakit analyze --config' reads [input], [sampling], [complex], [band]; 'tdakit study' reads",
+             "key. 'tdakit analyze --config' reads [input], [sampling], [complex], [band], [run]; 'tdakit study' reads",
              "[input] (with file) and [study], plus [sampling], [complex], [band] shared by every setting.",
              "Every section is a table ([band] followed by key = value lines); unknown sections and keys are refused.",
              "Column positions count from 0.", ""]

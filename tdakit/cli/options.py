@@ -9,11 +9,11 @@ from pathlib import Path
 
 import tomllib
 
-from tdakit.config import AnalysisOptions, StudyOptions
+from tdakit.config import AnalysisOptions, RunOptions, StudyOptions
 from tdakit.errors import DataFileNotFoundError, InvalidDataError, InvalidParameterError
 
 INPUT_KEYS = ("file", "columns", "metric", "box", "p", "standardize", "delimiter")
-ANALYZE_SECTIONS = ("input", "sampling", "complex", "band", "study")
+ANALYZE_SECTIONS = ("input", "sampling", "complex", "band", "run", "study")
 STUDY_SECTIONS = ("input", "study", "sampling", "complex", "band")
 # PNG resolution: journals ask 300-600 dpi, line art 1200; a 7.2 in wide page at 1200 dpi is 8640 pixels wide.
 DPI_RANGE = (20, 1200)
@@ -49,9 +49,11 @@ def add_analysis_arguments(parser: argparse.ArgumentParser) -> None:
     group.add_argument("--level", type=float, help="confidence level of the band (default 0.95)")
     add_replicate_arguments(group, "replicates behind the band (default 200; config key [band] n_boot)")
     add_budget_argument(group)
-    group.add_argument("--scheduler", metavar="ADDRESS", help="run the landmarks and replicates on a Dask cluster: "
-                       "its scheduler's address (tcp://host:8786) or 'local'; the run file records it and the "
-                       "workers' versions (needs tdakit[distributed])")
+    group.add_argument("--scheduler", metavar="ADDRESS", help="run the landmarks, the lazy witness edges and the "
+                       "replicates on a Dask cluster: its scheduler's address (tcp://host:8786), 'local', or 'none' "
+                       "for this machine; checked before the catalogue is read; the run file records it, the "
+                       "workers' versions and where each step ran (needs tdakit[distributed]; config key [run] "
+                       "scheduler)")
 
 
 def add_replicate_arguments(group, text: str, default=None) -> None:
@@ -129,6 +131,36 @@ def analysis_options(args, config: dict | None = None) -> AnalysisOptions:
     if args.landmarks is not None:
         sections["sampling"]["n_landmarks"] = None if args.landmarks == "all" else _count(args.landmarks)
     return AnalysisOptions.from_dict(sections)
+
+
+def run_options(args, config: dict | None = None) -> RunOptions:
+    """The [run] section of the config, then ``--scheduler`` (the flag wins, ``none`` included)."""
+    section = dict((config or {}).get("run", {}))
+    if getattr(args, "scheduler", None) is not None:
+        section["scheduler"] = args.scheduler
+    try:
+        return RunOptions.from_dict(section)
+    except InvalidParameterError as exc:
+        raise _scheduler_words(exc, args) if exc.parameter == "scheduler" else exc from None
+
+
+def check_scheduler(args, options: RunOptions, function: str = "analyze") -> None:
+    """Refuse a scheduler that does not answer (within seconds, before any file is read), in the flag's words."""
+    if options.scheduler is None:
+        return
+    from tdakit.distributed.scheduler import check_scheduler as probe
+
+    try:
+        probe(options.scheduler, function)
+    except InvalidParameterError as exc:
+        raise _scheduler_words(exc, args) from None
+
+
+def _scheduler_words(exc: InvalidParameterError, args) -> InvalidParameterError:
+    """A refused scheduler named as the user gave it: ``--scheduler`` or the config's ``[run] scheduler``."""
+    where = "--scheduler" if getattr(args, "scheduler", None) is not None else "[run] scheduler (in --config)"
+    text = re.sub(r"\bThe 'scheduler' parameter of [\w.]+ must be", f"{where} must be", " ".join(str(exc).split()))
+    return InvalidParameterError(text, parameter="scheduler")
 
 
 def memory_budget_line(options) -> str:

@@ -1,25 +1,27 @@
-"""The pipeline's ``scheduler=`` option: a Dask client for a run, and what the run records about it.
+"""The pipeline's ``scheduler=`` option: a Dask client for a run, its step functions, and what the run records.
 
 ``tdakit.analyze(cloud, options, scheduler="tcp://host:8786")`` (or ``tdakit analyze ... --scheduler
-ADDRESS``) runs the landmark step with :func:`~tdakit.distributed.select_landmarks_distributed` (maxmin
-and random landmarks; the other methods run in this process) and the band's replicates on the
-cluster's workers, and records the scheduler's address and every worker's versions in
-``provenance["scheduler"]``. The numbers are those of the same run without a scheduler.
+ADDRESS``, or the config key ``[run] scheduler``) runs on the cluster's workers: the landmark step with
+:func:`~tdakit.distributed.select_landmarks_distributed` (the methods in
+``tdakit.distributed.landmarks.DISTRIBUTED_METHODS``; the others run in this process), the lazy witness
+edge values with :func:`~tdakit.distributed.witness_edge_values_distributed` (every point a witness) and
+the band's replicates. The complex and its persistence, and gudhi's weak and strong witness complexes,
+are built in this process. ``provenance["scheduler"]`` records the scheduler's address, every worker's
+versions and where each step ran. The numbers are those of the same run without a scheduler.
 ``scheduler="local"`` starts a LocalCluster (one single-threaded worker per core) for the run.
 """
 
 from __future__ import annotations
 
-import contextlib
 import dataclasses
-import threading
-from collections.abc import Callable, Iterator
+from collections.abc import Callable
+
+import numpy as np
 
 from tdakit._validation import fail
 
-__all__ = ["open_scheduler", "analyze_on_scheduler", "landmark_function", "SchedulerSession"]
+__all__ = ["open_scheduler", "check_scheduler", "landmark_function", "witness_function", "SchedulerSession"]
 
-_ACTIVE = threading.local()
 CONNECT_TIMEOUT = "10s"  # how long a scheduler that accepted the connection has to answer
 PROBE_SECONDS = 3.0  # how long to wait for a TCP address to accept a connection at all
 _PACKAGES = ("tdakit", "numpy", "scipy", "numba", "dask", "distributed")
@@ -39,6 +41,16 @@ class SchedulerSession:
         workers = {address: _packages(info) for address, info in sorted(versions.get("workers", {}).items())}
         return {"address": self.address, "started_locally": self.cluster is not None, "n_workers": len(workers),
                 "scheduler": _packages(versions.get("scheduler", {})), "workers": workers}
+
+    def steps(self):
+        """The run's step functions on this cluster (a :class:`tdakit.pipeline.RunSteps`)."""
+        from tdakit.distributed.landmarks import DISTRIBUTED_METHODS
+        from tdakit.pipeline import RunSteps
+
+        methods = tuple(DISTRIBUTED_METHODS)
+        return RunSteps(landmarks=landmark_function(self.client, methods),
+                        lazy_witness_edges=witness_function(self.client), replicates=self.client,
+                        cluster_methods=methods)
 
     def close(self) -> None:
         self.client.close()
@@ -68,28 +80,52 @@ def open_scheduler(scheduler, function: str = "analyze") -> SchedulerSession:
     identity call as a scheduler; a refused, unknown or silent address, or a server that is no scheduler, is
     refused within seconds, never after dask's own connection timeout.
     """
-    if not isinstance(scheduler, str) or not scheduler.strip():
-        raise fail("scheduler", function, "None, 'local' or a Dask scheduler address such as 'tcp://host:8786'",
-                   scheduler)
-    try:
-        from distributed import Client, LocalCluster
-    except ImportError:
-        raise fail("scheduler", function, "None unless dask.distributed is installed (pip install "
-                   "tdakit[distributed])", scheduler) from None
-    scheduler = scheduler.strip()
+    scheduler = check_scheduler(scheduler, function)
+    from distributed import Client, LocalCluster
+
     if scheduler == "local":
         import os
 
         cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
         cluster = LocalCluster(n_workers=cores, threads_per_worker=1, processes=True, dashboard_address=None)
         return SchedulerSession(Client(cluster), cluster, cluster.scheduler_address)
-    _probe(scheduler, function)
     try:
         client = Client(scheduler, timeout=CONNECT_TIMEOUT)
     except Exception as exc:  # noqa: BLE001 - OSError, TimeoutError, ValueError, or a foreign server's garbage
         raise fail("scheduler", function, f"the address of a running Dask scheduler (connecting failed: "
                    f"{type(exc).__name__}: {exc})", scheduler) from None
     return SchedulerSession(client, None, scheduler)
+
+
+def check_scheduler(scheduler, function: str = "analyze") -> str:
+    """The address, stripped, once it can be used: dask is installed and a ``tcp://`` address answers as a scheduler.
+
+    Starts and keeps nothing (``"local"`` is only checked to be possible), so a front end can refuse a dead
+    address within seconds before a long read; :func:`open_scheduler` makes the same checks.
+
+    Parameters
+    ----------
+    scheduler : str
+        As in :func:`open_scheduler`.
+    function : str
+        The public function asking (for error messages).
+
+    Returns
+    -------
+    str
+    """
+    if not isinstance(scheduler, str) or not scheduler.strip():
+        raise fail("scheduler", function, "None, 'local' or a Dask scheduler address such as 'tcp://host:8786'",
+                   scheduler)
+    try:
+        import distributed  # noqa: F401
+    except ImportError:
+        raise fail("scheduler", function, "None unless dask.distributed is installed (pip install "
+                   "tdakit[distributed])", scheduler) from None
+    scheduler = scheduler.strip()
+    if scheduler != "local":
+        _probe(scheduler, function)
+    return scheduler
 
 
 def _probe(scheduler: str, function: str) -> None:
@@ -152,47 +188,49 @@ def _identity(address: str) -> str:
         pool.shutdown(wait=False)
 
 
-@contextlib.contextmanager
-def _active(session: SchedulerSession) -> Iterator[None]:
-    previous = getattr(_ACTIVE, "session", None)
-    _ACTIVE.session = session
-    try:
-        yield
-    finally:
-        _ACTIVE.session = previous
+def landmark_function(client=None, methods: tuple[str, ...] | None = None) -> Callable:
+    """The landmark selection a run calls: on ``client``'s cluster for the methods it offers, else in memory.
 
+    Parameters
+    ----------
+    client : distributed.Client, optional
+        None: :func:`tdakit.select_landmarks` itself.
+    methods : tuple of str, optional
+        The methods run on the cluster; default ``tdakit.distributed.landmarks.DISTRIBUTED_METHODS`` as it is
+        when the returned function is called. The method's own options (``density_power``,
+        ``density_neighbors``, ``keep_fraction``) are passed on wherever it runs.
 
-def landmark_function() -> Callable:
-    """The landmark selection the pipeline should call: on the active scheduler's cluster, else in memory."""
+    Returns
+    -------
+    callable
+        ``f(cloud, n_landmarks, *, method="maxmin", rng=None, start=None, **options) -> Landmarks``.
+    """
     from tdakit.core.geometry.landmarks import select_landmarks
 
-    session = getattr(_ACTIVE, "session", None)
-    if session is None:
+    if client is None:
         return select_landmarks
 
-    def select(cloud, n_landmarks, *, method="maxmin", rng=None, start=None, **others):
+    def select(cloud, n_landmarks, *, method="maxmin", rng=None, start=None, **options):
         from tdakit.distributed.landmarks import DISTRIBUTED_METHODS, select_landmarks_distributed
 
-        if method not in DISTRIBUTED_METHODS:  # density-weighted and core maxmin: in this process
-            return select_landmarks(cloud, n_landmarks, method=method, rng=rng, start=start, **others)
-        return select_landmarks_distributed(cloud, n_landmarks, method=method, rng=rng, start=start,
-                                            client=session.client)
+        if method not in (DISTRIBUTED_METHODS if methods is None else methods):
+            return select_landmarks(cloud, n_landmarks, method=method, rng=rng, start=start, **options)
+        return select_landmarks_distributed(cloud, n_landmarks, method=method, rng=rng, start=start, client=client,
+                                            **options)
 
     return select
 
 
-def analyze_on_scheduler(scheduler, cloud, options, **run):
-    """``analyze(cloud, options, **run)`` with its landmarks and replicates on the cluster; provenance records it."""
-    from tdakit.pipeline import analyze
+def witness_function(client) -> Callable[..., np.ndarray]:
+    """The lazy witness edge values on ``client``'s cluster, with the signature of :func:`tdakit.witness_edge_values`.
 
-    if run.get("executor") is not None:
-        raise fail("executor", "analyze", "None when a scheduler is given (the scheduler's client runs the "
-                   "replicates)", run["executor"])
-    session = open_scheduler(scheduler, "analyze")
-    try:
-        with _active(session):
-            result = analyze(cloud, options, **{**run, "executor": session.client})
-        record = session.record()
-    finally:
-        session.close()
-    return dataclasses.replace(result, provenance={**result.provenance, "scheduler": record})
+    The cloud's rows go to the workers, each lowers the matrix over its own witnesses and this process takes
+    the minimum (exact: the in-memory matrix). For ``compute_diagrams(..., lazy_witness_edges=...)``.
+    """
+
+    def edges(cloud, landmarks, *, nu: int = 1, max_scale: float | None = None) -> np.ndarray:
+        from tdakit.distributed.witness import witness_edge_values_distributed
+
+        return witness_edge_values_distributed(cloud, landmarks, nu=nu, max_scale=max_scale, client=client)
+
+    return edges

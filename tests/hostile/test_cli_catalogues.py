@@ -104,11 +104,11 @@ ANALYZE = [
     ("halos.fits", [*XY, "--n-boot", "5", "--replicates", "6"], "--n-boot 5 and --replicates 6"),
     ("halos.fits", [*XY, "--replicates", "0", "--n-boot", "0"], ("n_boot", "--n-boot")),
     # --scheduler
-    ("halos.fits", [*XY, "--scheduler", ""], "'scheduler'"),
+    ("halos.fits", [*XY, "--scheduler", ""], "--scheduler must be"),
     ("halos.fits", [*XY, "--scheduler", "tcp://127.0.0.1:1"], "within 3 s"),
     ("halos.fits", [*XY, "--scheduler", "tcp://127.0.0.1:99999"], "65535"),
     ("halos.fits", [*XY, "--scheduler", "tcp://no-such-host.invalid:8786"], "no-such-host.invalid"),
-    ("halos.fits", [*XY, "--scheduler", "nowhere"], "'scheduler'"),
+    ("halos.fits", [*XY, "--scheduler", "nowhere"], "--scheduler must be"),
 ]
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import warnings
+from collections.abc import Callable
 
 import numpy as np
 
@@ -11,7 +12,7 @@ from tdakit.core.geometry.cloud import Cloud
 from tdakit.core.geometry.landmarks import Landmarks, landmarks_from_indices
 from tdakit.core.topology import _complexes, _persistence, _witness
 from tdakit.core.topology.diagrams import Diagrams
-from tdakit.core.topology.preflight import default_memory_budget
+from tdakit.core.topology.preflight import check_dense_matrix, default_memory_budget
 from tdakit.errors import FewWitnessesWarning, MemoryBudgetError, TdakitError
 
 __all__ = ["compute_diagrams", "check_filtration_for", "FILTRATIONS", "WITNESS_KINDS", "landmark_constant",
@@ -84,6 +85,7 @@ def compute_diagrams(
     dtm_power: float = np.inf,
     memory_budget: float | None = None,
     rng: int | np.random.Generator | None = None,
+    lazy_witness_edges: Callable[..., np.ndarray] | None = None,
 ) -> Diagrams:
     """Persistence diagrams of a filtration built on the landmarks of a cloud.
 
@@ -143,6 +145,13 @@ def compute_diagrams(
         refused before they are built.
     rng : int, Generator or None
         Seed for the sparse Rips construction (the only random step).
+    lazy_witness_edges : callable, optional
+        Where the lazy witness edge values come from (``filtration="witness"``, ``witness="lazy"``;
+        unused otherwise): a function with the signature of :func:`witness_edge_values`,
+        ``f(cloud, landmark_indices, nu=..., max_scale=...)``, returning the same matrix, e.g. one
+        computed on a cluster (:func:`tdakit.distributed.witness_edge_values_distributed`). Default:
+        computed here. The complex is built here from the matrix either way; gudhi's weak and
+        strong witness complexes are always built in this process.
 
     Returns
     -------
@@ -168,6 +177,10 @@ def compute_diagrams(
     """
     opts = _check_options(cloud, landmarks, filtration, max_dim, max_scale, coefficient_field, collapse,
                           sparse, witness, witness_nu, dtm_neighbors, dtm_power, memory_budget)
+    if lazy_witness_edges is not None and not callable(lazy_witness_edges):
+        raise fail("lazy_witness_edges", _FN, "None or a function like witness_edge_values(cloud, landmarks, nu=, "
+                   "max_scale=)", lazy_witness_edges)
+    opts["edges"] = lazy_witness_edges
     marks, cap = opts["landmarks"], opts["cap"]
     tree, squared = _build(cloud, marks, opts, rng)
     per_dim = _persistence.tree_pairs(tree, opts["max_dim"], opts["field"])
@@ -268,10 +281,34 @@ def _build(cloud, marks, opts, rng):
         return _complexes.alpha_tree(cloud, idx, dim, cap, budget=budget)
     if opts["witness"] == "lazy":
         _check_witness_work(cloud, idx, opts)
+        if opts["edges"] is not None:
+            return _given_witness_tree(cloud, idx, opts), False
         return _complexes.lazy_witness_tree(cloud, idx, dim, cap, nu=opts["nu"], collapse=opts["collapse"],
                                             budget=budget)
     _check_witness_table(cloud, idx, opts)
     return _complexes.gudhi_witness_tree(cloud, idx, dim, cap, strong=opts["witness"] == "strong")
+
+
+def _given_witness_tree(cloud, idx, opts):
+    """The lazy witness complex on edge values from the caller's function (e.g. computed on a cluster)."""
+    check_dense_matrix(idx.size, opts["budget"])  # the matrix held here, and its copy when collapse re-checks
+    matrix = opts["edges"](cloud, idx, nu=opts["nu"], max_scale=opts["cap"])
+    _check_given_edges(matrix, idx.size)
+    return _complexes.flag_tree(matrix, opts["cap"], opts["max_dim"], collapse=opts["collapse"],
+                                budget=opts["budget"], what="lazy witness complex")
+
+
+def _check_given_edges(matrix, n_landmarks: int) -> None:
+    """Refuse a matrix that cannot be lazy witness edge values between ``n_landmarks`` landmarks."""
+    shape = (n_landmarks, n_landmarks)
+    if not isinstance(matrix, np.ndarray) or matrix.shape != shape or matrix.dtype != np.float64:
+        got = matrix if not isinstance(matrix, np.ndarray) else f"an array of shape {matrix.shape}, {matrix.dtype}"
+        raise fail("lazy_witness_edges", _FN, f"a function returning a float64 array of shape {shape} (one value "
+                   "per pair of landmarks)", got)
+    if np.isnan(matrix).any() or (matrix < 0).any() or (np.diagonal(matrix) != 0).any() \
+            or not np.array_equal(matrix, matrix.T):
+        raise fail("lazy_witness_edges", _FN, "a function returning lazy witness edge values: symmetric, "
+                   "non-negative, no NaN, zero diagonal", "a matrix that is not")
 
 
 def _check_witness_work(cloud, idx, opts):
