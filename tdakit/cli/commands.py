@@ -193,3 +193,16 @@ def summary(args) -> int:
     run = load_run(args.runfile)
     print(run_report(run, args.rows))
     return 0
+
+
+def convert(args) -> int:
+    from tdakit.io import catalogue_to_npy
+
+    columns = None if not args.columns else [int(c) if c.strip().isdigit() else c.strip()
+                                             for c in args.columns.split(",")]
+    record = catalogue_to_npy(args.file, args.output, columns=columns,
+                              **settings.catalogue_options(settings.catalogue_settings(args)))
+    unit = f" in {record['unit']}" if record["unit"] else ""
+    print(f"Wrote {args.output} ({record['n_rows']:,} of {record['n_rows_in_file']:,} rows, columns "
+          f"{', '.join(record['columns'])}{unit}) and {args.output}.json")
+    return 0

@@ -71,7 +71,12 @@ def _epilog(*parts: str) -> str:
 
 
 def _parser() -> argparse.ArgumentParser:
-    from tdakit.cli.options import add_analysis_arguments, add_budget_argument, add_input_arguments
+    from tdakit.cli.options import (
+        add_analysis_arguments,
+        add_budget_argument,
+        add_catalogue_arguments,
+        add_input_arguments,
+    )
 
     parser = argparse.ArgumentParser(
         prog="tdakit",
@@ -121,6 +126,18 @@ def _parser() -> argparse.ArgumentParser:
     add_replicate_arguments(demo, "replicates behind the noise band (default 100)", default=None)
     demo.add_argument("--no-figures", action="store_true", help="skip the figures")
     demo.add_argument("--quiet", action="store_true", help="no progress bars or progress lines")
+    convert = commands.add_parser(
+        "convert", help="write a catalogue's columns to a .npy file that every worker of a cluster can map",
+        epilog=EXIT_CODES,
+        description="Read chosen columns of a FITS, HDF5 or Parquet table in chunks (with the filter and the sky "
+                    "conversion of 'analyze') and write them to a float64 .npy file, with a description beside "
+                    "it (OUTPUT.json: source checksum, columns, filter, units). Row i of the file is point i of "
+                    "'analyze' with the same flags. For tdakit.distributed.select_landmarks_distributed.")
+    convert.add_argument("file", type=Path, help="the catalogue: .fits, .h5/.hdf5, .parquet (tdakit[formats])")
+    convert.add_argument("output", type=Path, help="the .npy file to write")
+    convert.add_argument("--columns", help="comma-separated columns, by name or by position counted from 0; "
+                                           "default: all")
+    add_catalogue_arguments(convert)
     commands.add_parser("config-keys", help="list every section and key of a config file, with defaults",
                         description="Every section and key of a tdakit config file, with its default and meaning.")
     return parser
@@ -207,7 +224,7 @@ def _dispatch(args) -> int:
         print(config_keys_text())
         return 0
     return {"analyze": commands.analyze, "study": commands.study, "redraw": commands.redraw,
-            "summary": commands.summary}[args.command](args)
+            "summary": commands.summary, "convert": commands.convert}[args.command](args)
 
 
 if __name__ == "__main__":

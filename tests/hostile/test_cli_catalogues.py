@@ -190,3 +190,40 @@ def test_config_keys_lists_the_catalogue_keys(capsys):
     assert status == 0 and not err
     for key in ("where", "dataset", "file_format", "drop_missing", "sky", "angle_unit", "cosmology", "little_h"):
         assert key in out
+
+
+CONVERT = [
+    (["halos.csv", "out.npy"], "FITS, HDF5 or Parquet"),
+    (["halos.fits", "out.csv"], "ending in .npy"),
+    (["halos.fits", "no/such/folder/out.npy"], "folder"),
+    (["halos.fits", "out.npy", "--columns", "x,nope"], "nope"),
+    (["halos.fits", "out.npy", "--columns", "x,y", "--sky", "parallax"], "three columns"),
+    (["halos.fits", "out.npy", "--columns", "ra,dec,parallax", "--sky", "parallax", "--unit", "Mpc"], "'unit'"),
+    (["halos.fits", "out.npy", "--where", "__import__('os')"], "'where'"),
+    (["halos.fits", "out.npy", "--where", "x > 1e9"], "gives 0 row"),
+    (["broken.fits", "out.npy"], "broken.fits"),
+    (["halos.h5", "out.npy", "--dataset", "dangling"], "dangling"),
+    (["halos.parquet", "out.npy", "--columns", "tags"], "tags"),
+    (["missing.fits", "out.npy"], "missing.fits"),
+    (["halos.fits", "out.npy", "--little-h"], "--little-h"),
+]
+
+
+@pytest.mark.entry("tdakit convert")
+@pytest.mark.parametrize("args, needle", CONVERT, ids=[" ".join(a) for a, _ in CONVERT])
+def test_convert_refuses_with_one_line_and_writes_nothing(data, tmp_path, capsys, monkeypatch, args, needle):
+    monkeypatch.chdir(tmp_path)
+    source = args[0] if args[0] == "missing.fits" else data / args[0]
+    assert_refused(cli(capsys, "convert", source, *args[1:]), needle)
+    assert list(tmp_path.iterdir()) == []
+
+
+@pytest.mark.entry("tdakit convert")
+def test_convert_writes_the_points_analyze_reads(data, tmp_path, capsys):
+    import tdakit
+
+    status, out, err = cli(capsys, "convert", data / "halos.fits", tmp_path / "sky.npy", "--columns", "ra,dec,z",
+                           "--sky", "redshift", "--where", "z < 0.15")
+    assert status == 0 and "sky.npy.json" in out, err
+    cloud = tdakit.load_cloud(data / "halos.fits", columns=["ra", "dec", "z"], sky="redshift", where="z < 0.15")
+    np.testing.assert_array_equal(np.load(tmp_path / "sky.npy"), cloud.points)

@@ -35,6 +35,7 @@ def catalogue_to_npy(
     file_format: str | None = None,
     drop_missing: bool = False,
     sky=None,
+    unit: str | None = None,
     chunk_rows: int = DEFAULT_CHUNK_ROWS,
 ) -> dict:
     """Write chosen columns of a FITS, HDF5 or Parquet table to a float64 ``.npy`` file without holding the table.
@@ -55,6 +56,9 @@ def catalogue_to_npy(
         As in :func:`tdakit.load_cloud`.
     sky : str, mapping or SkyConversion, optional
         Convert (RA, Dec, parallax or redshift) columns to x, y, z, as in :func:`tdakit.load_cloud`.
+    unit : str, optional
+        The coordinates' unit for the description (default: the file's, when every column names the
+        same; with ``sky``, the conversion's, which a different ``unit`` may not contradict).
     chunk_rows : int, default=65536
         Rows read at a time.
 
@@ -76,6 +80,10 @@ def catalogue_to_npy(
 
     path, target = as_path(source), _destination(destination)
     conversion = None if sky is None else SkyConversion.from_value(sky)
+    if unit is not None and (not isinstance(unit, str) or not unit.strip()
+                             or (conversion is not None and unit != conversion.unit)):
+        raise fail("unit", _FN, "None or a unit name" + ("" if conversion is None else
+                                                          f" equal to the conversion's, {conversion.unit!r}"), unit)
     checksum = _sha256(path)
     allocated: list[tuple[int, int]] = []
 
@@ -98,6 +106,7 @@ def catalogue_to_npy(
         values.flush()
         del values
     record = _record(path, checksum, table, where, dataset, drop_missing, conversion)
+    record["unit"] = unit or record["unit"]
     description = target.with_name(target.name + ".json")
     with atomic_output(description, what="description of the converted catalogue") as temporary:
         temporary.write_text(json.dumps(record, indent=2), encoding="utf-8")
