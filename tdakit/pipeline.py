@@ -332,7 +332,9 @@ def _diagrams_and_band(cloud, marks, options, seeds, timings, report, run,
     report("diagrams", 0, 1)
     if band_options.method == "density":  # it builds its own diagrams, from every point, before the replicates
         band_kwargs["progress"] = _after_first(lambda: report("diagrams", 1, 1), band_kwargs["progress"])
-        band = confidence_band(cloud, max_dim=complex_.max_dim, **band_kwargs)
+        budget = complex_.memory_budget
+        band = confidence_band(cloud, max_dim=complex_.max_dim, **band_kwargs,
+                               diagram_options=None if budget is None else {"memory_budget": budget})
         timings["diagrams + band"] = time.perf_counter() - start
         return band.diagrams, band
     diagrams = compute_diagrams(cloud, landmarks=marks, filtration=complex_.filtration,
@@ -369,14 +371,20 @@ def auto_band(cloud: Cloud, options: AnalysisOptions) -> str:
     metric), the subsampling band on Rips or alpha diagrams (valid; the only band with a proof for them), and
     the bootstrap for witness diagrams (which then calls nothing and says why: no landmark bound is known).
     """
-    from tdakit.config import ComplexOptions, SamplingOptions
+    from tdakit.config import SamplingOptions
 
     plain = cloud.metric.name in ("euclidean", "periodic") and 1 <= cloud.n_dims <= 3
-    defaults = (options.complex == ComplexOptions(max_dim=options.complex.max_dim)
-                and options.sampling == SamplingOptions())
+    defaults = _default_complex(options.complex) and options.sampling == SamplingOptions()
     if plain and defaults:
         return "density"
     return {"dtm": "dtm", "rips": "subsample", "alpha": "subsample"}.get(options.complex.filtration, "bootstrap")
+
+
+def _default_complex(complex_) -> bool:
+    """The default complex for its max_dim; the memory budget is no choice of complex (it bounds any band's work)."""
+    from tdakit.config import ComplexOptions
+
+    return dataclasses.replace(complex_, memory_budget=None) == ComplexOptions(max_dim=complex_.max_dim)
 
 
 def check_options(cloud: Cloud, options: AnalysisOptions | dict | None = None) -> AnalysisOptions:
@@ -388,7 +396,7 @@ def check_options(cloud: Cloud, options: AnalysisOptions | dict | None = None) -
 
 def _check_combination(cloud: Cloud, options: AnalysisOptions) -> AnalysisOptions:
     """Refuse options that cannot go together; record what a density run really computes."""
-    from tdakit.config import ComplexOptions, SamplingOptions
+    from tdakit.config import SamplingOptions
 
     if options.band.method == "auto":
         options = dataclasses.replace(options, band=dataclasses.replace(options.band, method=auto_band(cloud, options)))
@@ -400,7 +408,7 @@ def _check_combination(cloud: Cloud, options: AnalysisOptions) -> AnalysisOption
     if options.band.method != "density":
         return options
     complex_ = options.complex
-    if complex_ != ComplexOptions(max_dim=complex_.max_dim) or options.sampling not in (
+    if not _default_complex(complex_) or options.sampling not in (
             SamplingOptions(), SamplingOptions(n_landmarks=None)):
         raise fail("options", _FN, "default sampling and complex options with the 'density' band (it estimates a "
                    "kernel density on a grid from every point and builds its superlevel-set filtration, so no "

@@ -127,6 +127,19 @@ def test_contradictory_options_are_refused(circle_file, options):
 
 
 
+def test_the_memory_budget_goes_with_the_density_band_and_bounds_its_grid(circle_file):
+    # A budget is no choice of complex: the density band accepts it, and it bounds the grid (450 bytes a cell).
+    cloud = tdakit.load_cloud(circle_file)
+    plain = analyze(cloud, {"band": {"method": "density", "n_boot": 10}}, rng=2)
+    budgeted = analyze(cloud, {"complex": {"memory_budget": "1GB"}, "band": {"method": "density", "n_boot": 10}},
+                       rng=2)
+    assert budgeted.band.radii == plain.band.radii and budgeted.band.calls == plain.band.calls
+    with pytest.raises(tdakit.errors.MemoryBudgetError, match=r"at most resolution=\d+, or raise 'memory_budget'"):
+        analyze(cloud, {"complex": {"memory_budget": "1MB"}, "band": {"method": "density", "n_boot": 10}}, rng=2)
+    auto = analyze(cloud, {"complex": {"memory_budget": "1GB"}, "band": {"n_boot": 10}}, rng=2)
+    assert auto.band.method == "density"  # the budget does not change which band "auto" stands for
+
+
 def test_rng_in_analyze_and_in_select_landmarks_choose_the_same_landmarks(circle_file):
     cloud = tdakit.load_cloud(circle_file)
     for method in ("random", "maxmin", "density"):

@@ -291,7 +291,8 @@ def density_method(cloud, opts, run, bandwidth, resolution) -> Band:
     _check_bandwidth_reach(cloud, width)
     if resolution is not None:
         resolution = check_int(resolution, "resolution", _FN, low=8, high=4096)
-    _check_grid_memory(resolution or kde.DEFAULT_RESOLUTION[cloud.n_dims], cloud.n_dims)
+    budget = (opts.get("diagram_options") or {}).get("memory_budget")
+    _check_grid_memory(resolution or kde.DEFAULT_RESOLUTION[cloud.n_dims], cloud.n_dims, budget)
     grid = kde.make_density_grid(cloud, width, resolution)
     density = kde.smooth_counts(grid, grid.counts, cloud.n_points)
     diagrams = _density_diagrams(density, grid, opts)
@@ -329,15 +330,21 @@ def _check_bandwidth_reach(cloud, width: float) -> None:
 GRID_BYTES_PER_CELL = 450
 
 
-def _check_grid_memory(resolution: int, n_dims: int) -> None:
-    """Refuse a density grid whose persistence would not fit the memory budget, before allocating it."""
-    need, budget = GRID_BYTES_PER_CELL * float(resolution) ** n_dims, default_memory_budget()
+def _check_grid_memory(resolution: int, n_dims: int, budget: float | None = None) -> None:
+    """Refuse a density grid whose persistence would not fit the memory budget (default: a quarter of the
+    memory), before allocating it.
+    """
+    if budget is None:
+        budget = default_memory_budget()
+    else:
+        budget = check_float(budget, "memory_budget", _FN, low=0.0, low_open=True, allow_inf=True)
+    need = GRID_BYTES_PER_CELL * float(resolution) ** n_dims
     if need > budget:
         fits = int((budget / GRID_BYTES_PER_CELL) ** (1.0 / n_dims))
         raise MemoryBudgetError(
             f"Refused before building: a {n_dims}-D density grid of {resolution} cells per axis needs about "
-            f"{need / 2**30:.3g} GiB (budget {budget / 2**30:.3g} GiB). Use resolution={fits} or less.",
-            parameter="resolution")
+            f"{need / 2**30:.3g} GiB (budget {budget / 2**30:.3g} GiB). Use at most resolution={fits}, or raise "
+            f"'memory_budget'.", parameter="resolution")
 
 
 def _density_diagrams(density, grid, opts) -> Diagrams:
