@@ -160,7 +160,7 @@ def confidence_band(
     points, 200 replications): 0.950 at nominal 0.90 and 0.990 at nominal 0.95, so slightly
     conservative (``benchmarks/dtm_band.py --coverage 200``).
     The DTM band also finds the 12-coordinate loop with 3 % outliers in every run at 300
-    landmarks (34 % at 100). Weak: the torus at 4,000 points (no band finds both loops; the DTM
+    landmarks (30 % at 100). Weak: the torus at 4,000 points (no band finds both loops; the DTM
     band finds both in 89 % of runs at 20,000 points and 1,200 landmarks), the circle at noise
     0.2 for the DTM band.
 
