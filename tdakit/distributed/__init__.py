@@ -5,6 +5,8 @@ select_landmarks_distributed``. It needs the ``distributed`` extra (``pip instal
 
 select_landmarks_distributed
     Exact maxmin and uniform landmarks, and the exact coverage radius, with each worker keeping its own rows.
+knn_radius_distributed
+    Every point's exact distance to its k-th nearest neighbour, rows meeting by spatial cell on the workers.
 witness_edge_values_distributed
     The lazy witness edge values between landmarks, every point a witness, each worker scanning its rows.
 open_scheduler
@@ -14,7 +16,12 @@ open_scheduler
 
 from __future__ import annotations
 
-__all__ = ["select_landmarks_distributed", "witness_edge_values_distributed", "open_scheduler"]
+__all__ = [
+    "select_landmarks_distributed",
+    "knn_radius_distributed",
+    "witness_edge_values_distributed",
+    "open_scheduler",
+]
 
 
 def __getattr__(name: str):
@@ -22,6 +29,10 @@ def __getattr__(name: str):
         from tdakit.distributed.landmarks import select_landmarks_distributed
 
         return select_landmarks_distributed
+    if name == "knn_radius_distributed":
+        from tdakit.distributed.density import knn_radius_distributed
+
+        return knn_radius_distributed
     if name == "witness_edge_values_distributed":
         from tdakit.distributed.witness import witness_edge_values_distributed
 

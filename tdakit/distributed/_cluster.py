@@ -11,7 +11,8 @@ from pathlib import Path
 
 import numpy as np
 
-from tdakit._validation import check_int, fail
+from tdakit import errors
+from tdakit._validation import check_choice, check_int, fail
 from tdakit.core.geometry.cloud import Cloud
 from tdakit.core.geometry.metrics import Metric, make_metric
 from tdakit.errors import DataFileNotFoundError, InvalidDataError, InvalidParameterError
@@ -43,6 +44,10 @@ def describe_source(source, function: str) -> tuple[Source, Metric | None]:
     if _is_dask_array(source):
         _check_shape(source.shape, source.dtype, function)
         return Source("dask", int(source.shape[0]), int(source.shape[1]), source, "dask array"), None
+    if isinstance(source, np.ma.MaskedArray):
+        from tdakit.core.geometry.cloud import _unmask
+
+        source = _unmask(source, "source")  # refused with masked entries, as load_cloud does
     if isinstance(source, np.memmap) and getattr(source, "filename", None) is not None:
         _check_shape(source.shape, source.dtype, function)
         return Source("file", source.shape[0], source.shape[1], _memmap_reader(source), str(source.filename)), None
@@ -160,10 +165,12 @@ class Workers:
     """One :class:`~tdakit.distributed._worker.PartitionSet` actor per worker holding rows, for one call."""
 
     def __init__(self, client, source: Source, metric: Metric, n_landmarks: int, chunk_rows: int | None,
-                 function: str):
-        from tdakit.distributed._worker import PartitionSet
+                 function: str, keep_rows: str = "memory"):
+        from tdakit.distributed._worker import KEEP_ROWS, PartitionSet
 
+        keep_rows = check_choice(keep_rows, "keep_rows", function, KEEP_ROWS)
         self.client, self.source, self.metric = client, source, metric
+        self.keep_rows = keep_rows  # after loading: "memory", "disk", or "mixed" (auto chose per worker)
         self.bytes_moved = 0  # the selection rounds' messages (arrays, plus 64 bytes a message for the rest)
         addresses = worker_addresses(client, function)
         if chunk_rows is not None:
@@ -171,37 +178,36 @@ class Workers:
         placed, blocks = _place(client, source, addresses, chunk_rows)
         self.n_partitions = sum(len(pieces) for pieces in placed.values())
         # The blocks (futures) inside the pieces reach each actor as arrays on its own worker.
-        self._futures = [client.submit(PartitionSet, metric.to_dict(), n_landmarks, pieces, workers=[address],
-                                       actor=True, pure=False) for address, pieces in placed.items()]
+        self._futures = [client.submit(PartitionSet, metric.to_dict(), n_landmarks, pieces, keep_rows,
+                                       workers=[address], actor=True, pure=False) for address, pieces in placed.items()]
         self.actors = []
         try:
             self.actors = [future.result() for future in self._futures]
-            problems = self.call("load")
+            loaded = self.call("load")
             placed.clear()
             blocks.clear()  # the actors hold their own copies now; dropping the last references frees the blocks
-            problem = next((p for p in problems if p is not None), None)
+            problem = next((item["problem"] for item in loaded if item["problem"] is not None), None)
             if problem is not None:
-                raise InvalidDataError(problem[0], parameter=problem[1])
-            self._check_extent()
+                raise getattr(errors, problem[0], InvalidDataError)(problem[1], parameter=problem[2])
+            _check_extent(loaded)
+            modes = {item["keep_rows"] for item in loaded}
+            self.keep_rows = modes.pop() if len(modes) == 1 else "mixed"
         except BaseException:
             self.close()
             raise
 
-    def _check_extent(self) -> None:
-        from tdakit.core.geometry.cloud import MAX_EXTENT, MIN_EXTENT
-
-        ranges = [r for r in self.call("extent") if r is not None]
-        low, high = np.min([r[0] for r in ranges], axis=0), np.max([r[1] for r in ranges], axis=0)
-        extent = float((high - low).max())
-        if extent > MAX_EXTENT or 0.0 < extent < MIN_EXTENT:
-            raise InvalidDataError(f"Input 'source' spans {extent:.3g} along one axis; squared distances would "
-                                   f"overflow or underflow float64 (limits {MIN_EXTENT:g}, {MAX_EXTENT:g}). Rescale "
-                                   f"the coordinates first.", parameter="source")
-
     def call(self, method: str, *args) -> list:
-        """Call ``method(*args)`` on every worker at once; the results in worker order."""
+        """Call ``method(*args)`` on every worker at once; the results in worker order.
+
+        A scratch file that cannot be made (``keep_rows="disk"``, e.g. a full local disk) raises OutputWriteError.
+        """
+        from tdakit.distributed._worker import ScratchError
+
         pending = [getattr(actor, method)(*args) for actor in self.actors]
-        return [item.result() for item in pending]
+        try:
+            return [item.result() for item in pending]
+        except ScratchError as exc:
+            raise errors.OutputWriteError(str(exc), parameter="keep_rows") from None
 
     def coordinates(self, rows) -> np.ndarray:
         found: dict = {}
@@ -210,10 +216,32 @@ class Workers:
         return np.array([found[int(r)] for r in rows])
 
     def close(self) -> None:
-        self.actors = []
+        """Free every worker's arrays (and scratch files) at once, then let the actors go."""
+        actors, self.actors = self.actors, []
+        pending = []
+        for actor in actors:
+            try:
+                pending.append(actor.release())
+            except Exception:  # noqa: BLE001 - a worker already gone has nothing left to free
+                pass
+        for item in pending:
+            try:
+                item.result()
+            except Exception:  # noqa: BLE001
+                pass
         if self._futures:
             self.client.cancel(self._futures)
         self._futures = []
+
+
+def _check_extent(loaded: list[dict]) -> None:
+    """The core's extent check (that of load_cloud) on the rows as read, over every worker."""
+    from tdakit.core.geometry.cloud import check_extent
+
+    ranges = [(item["low"], item["high"]) for item in loaded if item["low"] is not None]
+    if ranges:
+        low, high = np.min([r[0] for r in ranges], axis=0), np.max([r[1] for r in ranges], axis=0)
+        check_extent(np.vstack((low, high)), "source")
 
 
 def _place(client, source: Source, addresses: list[str], chunk_rows: int | None) -> tuple[dict[str, list], list]:

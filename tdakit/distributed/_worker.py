@@ -4,21 +4,38 @@ A :class:`PartitionSet` lives on one worker (a Dask actor) for one call of the d
 routines. It reads its own rows (from a file the worker opens itself, or from blocks already
 on the worker), checks them, and keeps them for the whole selection; the driver only ever
 sends it a landmark's coordinates and gets back one (distance, row, coordinates) triple.
-Errors in the data come back as (message, parameter) pairs so the driver raises tdakit's own
+Rows are checked by the core's own checks (those of :func:`tdakit.load_cloud`), a chunk at a time;
+errors come back as (error class name, message, parameter) so the driver raises tdakit's own
 error with global row numbers.
+
+With ``keep_rows="disk"`` the box-ordered working coordinates and the boxes' order (``rank``) live
+in scratch files in the worker's own local directory, memory-mapped: the kernel's page cache holds
+them (reclaimable, written back to the file when memory is short) instead of the worker's private
+memory, which keeps only each point's distance to and index of its nearest landmark (12 bytes).
+Each file is unlinked as soon as it is mapped, so the kernel frees its space when the last map goes:
+when the selection ends or fails (:meth:`PartitionSet.release`), and also when the worker is killed.
 """
 
 from __future__ import annotations
 
+import os
+import tempfile
 from types import SimpleNamespace
 
 import numpy as np
 
-from tdakit.core.geometry.cloud import MAX_EXTENT
 from tdakit.core.geometry.metrics import Metric
+from tdakit.distributed._worker_density import DensityMixin
 
 # Rows read, checked and embedded at a time while loading (bounds the extra memory of a load).
 LOAD_ROWS = 1 << 20
+KEEP_ROWS = ("auto", "memory", "disk")
+# Scratch files are named tdakit-rows-*.bin (in the worker's local directory; unlinked once mapped).
+SCRATCH_PREFIX = "tdakit-rows-"
+# Per-point bytes besides the working coordinates (8 each): distance, landmark, rank (for the "auto" choice).
+STATE_BYTES = 16
+# File systems whose pages are memory (not reclaimable without swap): "auto" keeps the rows in memory there.
+MEMORY_FILE_SYSTEMS = ("tmpfs", "ramfs")
 
 
 class Part:
@@ -45,53 +62,99 @@ class Part:
         return slots[np.argsort(self.rank[slots])]
 
 
-class PartitionSet:
+class PartitionSet(DensityMixin):
     """A worker's partitions (see the module docstring). Created with ``client.submit(..., actor=True)``."""
 
-    def __init__(self, metric: dict, n_landmarks: int, pieces: list):
+    def __init__(self, metric: dict, n_landmarks: int, pieces: list, keep_rows: str = "memory"):
         self.pieces = pieces
         self.metric = Metric(name=metric["name"], p=float(metric["p"]),
                              box=None if metric["box"] is None else tuple(metric["box"]))
         self.n_landmarks = int(n_landmarks)
         self.parts: list[Part] = []
         self.marks = None
+        self.keep_rows = keep_rows
+        self.scratch: Scratch | None = None
+        self.low = self.high = None  # per-column extremes of the rows as read (before embedding)
 
     # -- loading ---------------------------------------------------------------------------
-    def load(self) -> tuple | None:
-        """Read and check every piece ``(offset, reader)``; (message, parameter) for the first bad row, else None.
+    def load(self) -> dict:
+        """Read and check every piece ``(offset, reader)``; where the rows are kept, and the first problem.
 
         A reader is ``("file", filename, file_offset, dtype, shape, order, start, stop)`` for rows of a
-        file this worker reads itself, or ``("block", array)`` for rows already here.
+        file this worker reads itself, or ``("block", array)`` for rows already here. Returns ``problem``
+        (error class name, message, parameter; None without), ``keep_rows`` ("memory" or "disk") and
+        ``low``/``high``, the per-column extremes of the rows as read (None without rows).
         """
         pieces, self.pieces = self.pieces, None
-        for offset, reader in pieces:
-            source = _open(reader)
-            work, problem = self._checked_work(source, offset)
-            if problem is not None:
-                self.parts.clear()
-                return problem
-            self.parts.append(Part(offset, work))
-        return None
+        sources = [(offset, _open(reader)) for offset, reader in pieces]
+        problem = None
+        try:
+            self._choose_storage(sources)
+            for offset, source in sources:
+                work, problem = self._checked_work(source, offset)
+                if problem is not None:
+                    break
+                self.parts.append(Part(offset, work))
+        except ScratchError as exc:
+            problem = ("OutputWriteError", str(exc), "keep_rows")
+        if problem is not None:
+            self.release()
+        return {"problem": problem, "keep_rows": "disk" if self.scratch is not None else "memory",
+                "low": self.low, "high": self.high}
+
+    def _choose_storage(self, sources: list) -> None:
+        """Resolve ``keep_rows``: "auto" is disk when rows and state would pass half this worker's memory limit,
+        unless the scratch folder is in memory itself (tmpfs, ramfs), where mapping gains nothing.
+        """
+        folder = scratch_folder()
+        if self.keep_rows == "auto":
+            dims = 3 if self.metric.name == "angular" else max((s.shape[1] for _, s in sources), default=1)
+            need = sum(s.shape[0] for _, s in sources) * (8 * dims + STATE_BYTES)
+            fits = need <= memory_limit() / 2
+            self.keep_rows = "memory" if fits or file_system(folder) in MEMORY_FILE_SYSTEMS else "disk"
+        if self.keep_rows == "disk":
+            self.scratch = Scratch(folder)
+
+    def new_array(self, shape: tuple, dtype) -> np.ndarray:
+        """An uninitialised array: in memory, or mapped from a scratch file (``keep_rows="disk"``)."""
+        if self.scratch is None or int(np.prod(shape)) == 0:
+            return np.empty(shape, dtype=dtype)
+        return self.scratch.array(shape, dtype)
 
     def _checked_work(self, source, offset: int):
+        from tdakit.core.geometry._checks_metric import check_points_for_metric
+        from tdakit.core.geometry.cloud import _check_finite
+        from tdakit.errors import TdakitError
+
         rows = source.shape[0]
         dims = 3 if self.metric.name == "angular" else source.shape[1]
-        work = np.empty((rows, dims))
+        work = self.new_array((rows, dims), np.float64)
         for start in range(0, rows, LOAD_ROWS):
             chunk = np.asarray(source[start:start + LOAD_ROWS], dtype=np.float64)
-            problem = check_rows(chunk, self.metric, offset + start)
-            if problem is not None:
-                return None, problem
+            try:  # the core's checks of load_cloud, with global row numbers
+                _check_finite(chunk, "source", first_row=offset + start)
+                check_points_for_metric(chunk, self.metric, "source", first_row=offset + start)
+            except TdakitError as exc:
+                return None, (type(exc).__name__, str(exc), exc.parameter)
+            self._note_extent(chunk)
             work[start:start + chunk.shape[0]] = self.metric.embed(chunk)
         return work, None
 
-    def extent(self) -> tuple[np.ndarray, np.ndarray] | None:
-        """Per-column minimum and maximum of this worker's working coordinates (None without rows)."""
-        parts = [p for p in self.parts if p.n]
-        if not parts:
-            return None
-        low = np.min([p.work.min(axis=0) for p in parts], axis=0)
-        return low, np.max([p.work.max(axis=0) for p in parts], axis=0)
+    def _note_extent(self, chunk: np.ndarray) -> None:
+        if not chunk.size:
+            return
+        low, high = chunk.min(axis=0), chunk.max(axis=0)
+        self.low = low if self.low is None else np.minimum(self.low, low)
+        self.high = high if self.high is None else np.maximum(self.high, high)
+
+    def release(self) -> None:
+        """Drop every array (scratch files included: their space goes back with the last map)."""
+        for part in self.parts:  # also for a Part still referenced elsewhere
+            part.work = part.rank = part.tree = part.to_mark = part.owner = None
+        self.parts = []
+        self.marks = None
+        if self.scratch is not None:
+            self.scratch.close()
 
     def coordinates(self, rows: list[int]) -> dict:
         """Working coordinates of the given global rows that live here, by row."""
@@ -105,7 +168,23 @@ class PartitionSet:
         return found
 
     # -- maxmin ----------------------------------------------------------------------------
+    def _guarded(self, method, *args):
+        """``method(*args)``; a scratch file that cannot be made frees everything first, then raises.
+
+        The error is raised anew outside the handler, so no traceback keeps the frames (and their maps) alive.
+        """
+        try:
+            return method(*args)
+        except ScratchError as exc:
+            message = str(exc)
+        self.release()
+        raise ScratchError(message)
+
     def start_maxmin(self, leaf_size: int, group: int) -> None:
+        """Cut every partition into boxes and start its maxmin state (no landmark yet)."""
+        self._guarded(self._start_maxmin, leaf_size, group)
+
+    def _start_maxmin(self, leaf_size: int, group: int) -> None:
         from tdakit.distributed import _kernels
 
         dims = self.parts[0].work.shape[1] if self.parts else 1
@@ -114,7 +193,9 @@ class PartitionSet:
         self.stamp = np.full(self.n_landmarks, -1, dtype=np.int64)
         self.group = int(group)
         for part in self.parts:
-            part.rank = np.arange(part.n, dtype=np.int32 if part.n < 2**31 else np.int64)
+            part.rank = self.new_array((part.n,), np.int32 if part.n < 2**31 else np.int64)
+            for start in range(0, part.n, LOAD_ROWS):
+                part.rank[start:start + LOAD_ROWS] = np.arange(start, min(start + LOAD_ROWS, part.n))
             prepared = _kernels.prepare(part.work, part.rank, int(leaf_size), self.group)
             part.tree = (prepared[0], tuple(prepared[1:5]), tuple(prepared[5:]))
             part.to_mark = np.full(part.n, np.inf)
@@ -181,23 +262,43 @@ class PartitionSet:
     def maxmin_per_point(self, outputs) -> list:
         """Each row's nearest landmark and distance, written to ``outputs`` (files) or returned, one array at a time.
 
-        Ends the selection: the coordinates and boxes are freed first, so the per-point arrays take their place.
-        Returns (first row, nearest or None, distance or None, largest distance) per partition.
+        Ends the selection: the coordinates and boxes are freed first, so the per-point arrays take their place
+        (scratch files with ``keep_rows="disk"``). Returns (first row, nearest or None, distance or None, largest
+        distance) per partition.
         """
+        return self._guarded(self._maxmin_per_point, outputs)
+
+    def _maxmin_per_point(self, outputs) -> list:
         results = []
         for part in self.parts:
             part.work = part.tree = None
-            distance = np.empty(part.n)
-            distance[part.rank] = part.to_mark
+            distance = self._unshuffle(part, part.to_mark, np.float64)
             part.to_mark = None
-            distance = self.metric.to_metric(distance)
-            radius = float(distance.max())
-            distance = _write(outputs, "distance", part.offset, distance)
-            nearest = np.empty(part.n, dtype=np.intp)
-            nearest[part.rank] = part.owner
+            radius = 0.0
+            for start in range(0, part.n, LOAD_ROWS):
+                block = self.metric.to_metric(distance[start:start + LOAD_ROWS])
+                radius = max(radius, float(block.max()))
+                distance[start:start + LOAD_ROWS] = block
+            distance = self._deliver(outputs, "distance", part.offset, distance)
+            nearest = self._unshuffle(part, part.owner, np.intp)
             part.owner = part.rank = None
-            results.append((part.offset, _write(outputs, "nearest", part.offset, nearest), distance, radius))
+            results.append((part.offset, self._deliver(outputs, "nearest", part.offset, nearest), distance, radius))
         return results
+
+    def _unshuffle(self, part: Part, values: np.ndarray, dtype) -> np.ndarray:
+        """``values`` (one per slot) in row order, a block of slots at a time."""
+        ordered = self.new_array((part.n,), dtype)
+        for start in range(0, part.n, LOAD_ROWS):
+            ordered[part.rank[start:start + LOAD_ROWS]] = values[start:start + LOAD_ROWS]
+        return ordered
+
+    def _deliver(self, outputs, name: str, first_row: int, values: np.ndarray):
+        """Write ``values`` to the output file in blocks (None), or return them (copied out of a scratch map)."""
+        if outputs is None:
+            return values if self.scratch is None else np.array(values)
+        for start in range(0, values.size, LOAD_ROWS):
+            _write(outputs, name, first_row + start, values[start:start + LOAD_ROWS])
+        return None
 
     # -- nearest landmark of every point (random landmarks, coverage) ----------------------
     def nearest_landmarks(self, marks: np.ndarray, mark_rows: list[int], outputs) -> list:
@@ -292,35 +393,96 @@ def _write(outputs, name: str, first_row: int, values: np.ndarray):
     return None
 
 
-def check_rows(chunk: np.ndarray, metric: Metric, first_row: int) -> tuple[str, str] | None:
-    """The first problem in rows [first_row, first_row + len(chunk)) as (message, parameter), else None."""
-    bad = ~np.isfinite(chunk)
-    if bad.any():
-        row, col = np.argwhere(bad)[0]
-        what = "NaN" if np.isnan(chunk[row, col]) else "infinity"
-        return (f"Input 'source' contains {what} at row {first_row + row} (column {col}). Drop or impute those "
-                f"rows first.", "source")
-    if metric.name == "periodic":
-        box = np.asarray(metric.box)
-        outside = (chunk < 0) | (chunk > box)
-        if outside.any():
-            row, col = np.argwhere(outside)[0]
-            return (f"Input 'source' has a point outside the periodic box at row {first_row + row}: column {col} "
-                    f"is {float(chunk[row, col])!r}, expected within [0, {float(box[col])!r}]. tdakit does not wrap "
-                    f"points silently; apply `np.mod(points, box)` yourself if wrapping is intended.", "source")
-    if metric.name == "angular":
-        lat = chunk[:, 1]
-        bad_rows = np.flatnonzero((lat < -90) | (lat > 90))
-        if bad_rows.size:
-            row = int(bad_rows[0])
-            return (f"Input 'source' has latitude {float(lat[row])!r} at row {first_row + row}; latitudes must lie "
-                    f"in [-90, 90] degrees (column 1 is the latitude).", "source")
-    if metric.name == "cosine":
-        zero = np.flatnonzero(np.linalg.norm(chunk, axis=1) == 0)
-        if zero.size:
-            return (f"Input 'source' has an all-zero row at row {first_row + int(zero[0])}; the cosine "
-                    f"dissimilarity is undefined for zero vectors. Drop those rows first.", "source")
-    if chunk.size and float((chunk.max(axis=0) - chunk.min(axis=0)).max()) > MAX_EXTENT:
-        return (f"Input 'source' spans more than {MAX_EXTENT:g} along one axis near row {first_row}; squared "
-                f"distances would overflow float64. Rescale the coordinates first.", "source")
-    return None
+def memory_limit() -> float:
+    """The memory limit of this worker in bytes (its Dask ``memory_limit``; without one, the machine's memory)."""
+    import psutil
+
+    limit = getattr(getattr(_dask_worker(), "memory_manager", None), "memory_limit", None)
+    return float(limit) if limit else float(psutil.virtual_memory().total)
+
+
+def scratch_folder() -> str:
+    """The folder for scratch files: the Dask worker's ``local_directory``, else the system's temporary folder."""
+    folder = getattr(_dask_worker(), "local_directory", None)
+    return str(folder) if folder else tempfile.gettempdir()
+
+
+def file_system(folder: str) -> str | None:
+    """The type of the file system holding ``folder``, from /proc/mounts (None where unknown)."""
+    try:
+        with open("/proc/mounts") as mounts:
+            table = [line.split()[1:3] for line in mounts if len(line.split()) > 2]
+    except OSError:
+        return None
+    path = os.path.realpath(folder)
+    found, longest = None, -1
+    for point, kind in table:
+        point = point.replace("\\040", " ")
+        inside = path == point or path.startswith(point.rstrip("/") + "/")
+        if inside and len(point) >= longest:  # the longest mount point holding it; a later mount hides an earlier
+            found, longest = kind, len(point)
+    return found
+
+
+def _dask_worker():
+    try:
+        from distributed import get_worker
+
+        return get_worker()
+    except (ImportError, ValueError):
+        return None
+
+
+def _scratch_message(folder: str, exc: OSError) -> str:
+    return (f"The 'keep_rows' parameter was 'disk' (or 'auto' chose it), which needs a writable local folder with "
+            f"room for the worker's rows, but a scratch file could not be made in {folder!r} ({exc}). Give the "
+            f"workers a writable local directory with free space (Dask's 'temporary-directory' setting, or "
+            f"local_directory= of the workers), or pass keep_rows='memory'.")
+
+
+class ScratchError(Exception):
+    """A scratch file could not be made; the message says where and why (the driver raises OutputWriteError)."""
+
+
+class Scratch:
+    """Arrays in files of one folder, mapped read-write; each file is unlinked as soon as it is mapped.
+
+    The space is reserved up front (``posix_fallocate``), so a full disk fails here (:class:`ScratchError`) and
+    not later as a fault while writing through the map. Where a mapped file cannot be unlinked (not on Linux),
+    its name is kept and the file removed by :meth:`close`.
+    """
+
+    def __init__(self, folder: str):
+        self.folder = str(folder)
+        self.kept: list[str] = []
+
+    def array(self, shape: tuple, dtype) -> np.ndarray:
+        try:
+            return self._array(shape, np.dtype(dtype))
+        except OSError as exc:
+            raise ScratchError(_scratch_message(self.folder, exc)) from exc
+
+    def _array(self, shape: tuple, dtype: np.dtype) -> np.ndarray:
+        size = int(np.prod(shape)) * dtype.itemsize
+        handle, name = tempfile.mkstemp(prefix=SCRATCH_PREFIX, suffix=".bin", dir=self.folder)
+        try:
+            with os.fdopen(handle, "w+b") as stream:
+                if hasattr(os, "posix_fallocate"):
+                    os.posix_fallocate(stream.fileno(), 0, size)
+                else:
+                    stream.truncate(size)
+                mapped = np.memmap(stream, dtype=dtype, mode="r+", shape=shape)
+        finally:
+            try:
+                os.unlink(name)
+            except OSError:
+                self.kept.append(name)
+        return np.asarray(mapped)  # a plain array over the map (the map lives as long as the array)
+
+    def close(self) -> None:
+        for name in self.kept:
+            try:
+                os.unlink(name)
+            except OSError:
+                pass
+        self.kept = []

@@ -8,14 +8,16 @@ from pathlib import Path
 
 import numpy as np
 
-from tdakit._validation import check_choice, check_int, check_rng, fail
+from tdakit._validation import check_choice, check_float, check_int, check_rng, fail
 from tdakit.core.geometry.landmarks import Landmarks
 from tdakit.distributed._cluster import Workers, describe_source, get_client, resolve_metric
+from tdakit.distributed._worker import KEEP_ROWS
+from tdakit.distributed.density import core_landmarks, density_landmarks
 from tdakit.errors import InvalidParameterError, MemoryBudgetError
 
 __all__ = ["select_landmarks_distributed", "DISTRIBUTED_METHODS", "GATHER_LIMIT_BYTES"]
 
-DISTRIBUTED_METHODS = ("maxmin", "random")
+DISTRIBUTED_METHODS = ("maxmin", "random", "density", "core_maxmin")
 # Per-point results (nearest landmark and distance, 16 bytes a point) come back to this process up to this size;
 # above it they go to files (``per_point=<folder>``) or the call is refused before it starts.
 GATHER_LIMIT_BYTES = 2 * 2**30
@@ -36,9 +38,13 @@ def select_landmarks_distributed(
     p: float | None = None,
     rng: int | np.random.Generator | None = None,
     start: int | None = None,
+    density_power: float = 1.0,
+    density_neighbors: int | None = None,
+    keep_fraction: float = 0.9,
     chunk_rows: int | None = None,
     per_point: str | Path | None = None,
     progress: Callable[[str, int, int], None] | None = None,
+    keep_rows: str = "auto",
 ) -> Landmarks:
     r"""Landmarks of a cloud held by the workers of a Dask cluster, identical to :func:`tdakit.select_landmarks`.
 
@@ -56,13 +62,22 @@ def select_landmarks_distributed(
         this process is sent to the workers once.
     n_landmarks : int
         How many landmarks, at least 1 and at most the number of distinct points.
-    method : {"maxmin", "random"}, default="maxmin"
+    method : {"maxmin", "random", "density", "core_maxmin"}, default="maxmin"
         As in :func:`tdakit.select_landmarks`: sequential farthest point, ties to the lowest
-        row, or uniform without replacement. Both give the in-memory routine's landmarks for
-        the same ``rng`` and ``start``, whatever the number of workers and partitions. Maxmin
-        refuses more landmarks than distinct points when it runs out of them; ``"random"`` does
-        not count distinct points (that needs every row in one place), so on a cloud with
-        repeats it may pick copies of one point where the in-memory routine would refuse.
+        row; uniform without replacement; density-weighted without replacement among the
+        distinct points; or maxmin among the ``keep_fraction`` densest points. All give the
+        in-memory routine's landmarks for the same ``rng`` and ``start``, whatever the number of
+        workers and partitions. Maxmin refuses more landmarks than distinct points when it runs
+        out of them; ``"random"`` does not count distinct points (that needs every row in one
+        place), so on a cloud with repeats it may pick copies of one point where the in-memory
+        routine would refuse. ``"density"`` and ``"core_maxmin"`` first compute every point's
+        exact kNN radius and first occurrence on the cluster
+        (:func:`~tdakit.distributed.knn_radius_distributed`, whose Notes give the cost);
+        ``"density"`` then replays the in-memory random
+        stream partition by partition (the driver draws and discards one exponential per distinct
+        point, no per-point data moves); ``"core_maxmin"`` finds the densest rows' threshold by
+        bisection and runs the maxmin above on them (each worker holds a copy of its kept rows
+        meanwhile).
     client : dask.distributed.Client, optional
         The cluster (default: the current client). A ``LocalCluster`` on one machine, or a
         cluster from dask-jobqueue on SLURM/PBS (see Examples).
@@ -72,10 +87,18 @@ def select_landmarks_distributed(
     box, p : optional
         Periodic box side(s) and Minkowski order, as in :func:`tdakit.load_cloud`.
     rng : int, Generator or None
-        Randomness for the first maxmin landmark (when ``start`` is omitted) and for
-        ``"random"``; the same seed gives the in-memory routine's landmarks.
+        Randomness for the first maxmin landmark (when ``start`` is omitted; among the kept
+        points for ``"core_maxmin"``) and for ``"random"`` and ``"density"``; the same seed gives
+        the in-memory routine's landmarks.
     start : int, optional
         Row of the first maxmin landmark.
+    density_power : float, default=1.0
+        Exponent of the density weight (``"density"`` only), in [-10, 10].
+    density_neighbors : int, optional
+        k of the kNN density (``"density"``, ``"core_maxmin"``), in [1, n_points - 1]; default
+        ``min(15, n_points - 1)``.
+    keep_fraction : float, default=0.9
+        Fraction of densest points kept by ``"core_maxmin"``, in (0, 1].
     chunk_rows : int, optional
         Rows per partition (default: one partition per worker; for a dask array, its own
         row chunks). The landmarks do not depend on it.
@@ -87,6 +110,19 @@ def select_landmarks_distributed(
         :class:`~tdakit.errors.MemoryBudgetError` above ``GATHER_LIMIT_BYTES`` (16 bytes a point).
     progress : callable, optional
         ``progress("landmarks", done, total)`` after each landmark.
+    keep_rows : {"auto", "memory", "disk"}, default="auto"
+        Where each worker keeps its rows' working coordinates (cut into boxes) and their order for
+        the whole call. ``"memory"``: in the worker's own memory (8 n_dims + 16 bytes a point).
+        ``"disk"``: in a scratch file in the worker's local directory (Dask's ``local_directory``),
+        memory-mapped, so that they sit in the kernel's page cache (reclaimable) and only each point's
+        nearest landmark and distance stay in the worker's memory (12 bytes a point); the file needs
+        8 n_dims + 4 bytes a point of free local disk (not a tmpfs, where mapped pages are memory), is
+        written once while loading and removed when the call ends or fails (or the worker dies).
+        ``"auto"``: each worker chooses disk when its rows and state would exceed half its memory limit
+        (the machine's memory without one) and its local directory is not on a tmpfs or ramfs. The
+        landmarks and results are identical in every mode; ``params["cluster"]["keep_rows"]`` says
+        which was used ("mixed" when the workers chose differently). A local directory that cannot
+        hold the file raises :class:`~tdakit.errors.OutputWriteError` naming ``keep_rows``.
 
     Returns
     -------
@@ -108,7 +144,9 @@ def select_landmarks_distributed(
     many landmarks travel together (about 12 a round for 1,000 landmarks of 10^7 points).
     Cost: rounds x (round-trip latency + the slowest worker's pass) plus each worker reading its
     rows once; a round moves about 8 (2 + 3 n_dims) ``BOXES_PER_ROUND`` bytes per worker. Memory
-    per worker: its rows (8 n_dims bytes a point) and 16 bytes a point of state. See "Beyond one
+    per worker: its rows (8 n_dims bytes a point) and 16 bytes a point of state with
+    ``keep_rows="memory"``; 12 bytes a point of private memory with ``"disk"`` (the rest mapped from
+    its scratch file). See "Beyond one
     machine" in ``benchmarks/README.md`` for measured numbers and a cost model.
 
     References
@@ -137,8 +175,6 @@ def select_landmarks_distributed(
         marks = select_landmarks_distributed("/scratch/catalogue.npy", 1000, rng=0, client=client,
                                              per_point="/scratch/marks")
     """
-    if method == "density":
-        _no_density()
     method = check_choice(method, "method", _FN, DISTRIBUTED_METHODS)
     described, cloud_metric = describe_source(source, _FN)
     n_landmarks = check_int(n_landmarks, "n_landmarks", _FN, low=1, high=described.n_rows,
@@ -147,20 +183,34 @@ def select_landmarks_distributed(
     generator = check_rng(rng, _FN)
     if start is not None:
         start = check_int(start, "start", _FN, low=0, high=described.n_rows - 1, note="a point index")
+    density = _density_options(method, density_power, density_neighbors, keep_fraction, described)
     if progress is not None and not callable(progress):
         raise fail("progress", _FN, "None or a callable progress(step, done, total)", progress)
+    keep_rows = check_choice(keep_rows, "keep_rows", _FN, KEEP_ROWS)
     client = get_client(client, _FN)
     outputs = _per_point_files(per_point, described.n_rows)
     params = {"start": start, "seed": int(rng) if isinstance(rng, (int, np.integer)) and
               not isinstance(rng, bool) else None}
     began = time.perf_counter()
-    workers = Workers(client, described, chosen_metric, n_landmarks, chunk_rows, _FN)
+    workers = Workers(client, described, chosen_metric, n_landmarks, chunk_rows, _FN, keep_rows=keep_rows)
     try:
         loaded = time.perf_counter()
         if method == "maxmin":
             first = start if start is not None else int(generator.integers(described.n_rows))
             indices, rounds = _maxmin(workers, n_landmarks, first, chosen_metric, progress)
             per_row = workers.call("maxmin_per_point", outputs)
+        elif method == "density":
+            indices, _ = density_landmarks(workers, n_landmarks, *density, generator, _FN)
+            params.update(density_power=density[0], density_neighbors=density[1])
+            rounds = 1
+            per_row = workers.call("nearest_landmarks", workers.coordinates(indices), indices.tolist(), outputs)
+            if progress is not None:
+                progress("landmarks", n_landmarks, n_landmarks)
+        elif method == "core_maxmin":
+            indices, _ = core_landmarks(workers, n_landmarks, *density, start, generator, _FN, progress)
+            params.update(keep_fraction=density[0], density_neighbors=density[1])
+            rounds = 1
+            per_row = workers.call("nearest_landmarks", workers.coordinates(indices), indices.tolist(), outputs)
         else:
             indices = np.sort(generator.choice(described.n_rows, size=n_landmarks, replace=False)).astype(np.intp)
             rounds = 1
@@ -170,19 +220,27 @@ def select_landmarks_distributed(
         finished = time.perf_counter()
         params["cluster"] = {"workers": len(workers.actors), "partitions": workers.n_partitions, "rounds": rounds,
                              "load_seconds": loaded - began, "select_seconds": finished - loaded,
-                             "bytes_moved": workers.bytes_moved}
+                             "bytes_moved": workers.bytes_moved, "keep_rows": workers.keep_rows}
     finally:
         workers.close()
     nearest, distance, radius = _assemble(per_row, outputs, described.n_rows)
     return _wrap(indices, radius, nearest, distance, method, params)
 
 
-def _no_density() -> None:
-    raise InvalidParameterError(
-        "The 'method' parameter of select_landmarks_distributed must be one of 'maxmin', 'random'. Got 'density' "
-        "instead: density-weighted landmarks need every point's k-nearest-neighbour radius across partitions, which "
-        "this version does not compute on a cluster; use tdakit.select_landmarks(method='density') on a cloud that "
-        "fits one process, or maxmin here.", parameter="method")
+def _density_options(method: str, power, neighbors, keep_fraction, described) -> tuple | None:
+    """("density") the weight's power and neighbours, or ("core_maxmin") the kept fraction and neighbours,
+    checked as in memory; None for the other methods.
+    """
+    if method not in ("density", "core_maxmin"):
+        return None
+    n_rows = described.n_rows
+    if method == "density":
+        first = check_float(power, "density_power", _FN, low=-10.0, high=10.0)
+    else:
+        first = check_float(keep_fraction, "keep_fraction", _FN, low=0.0, high=1.0, low_open=True)
+    neighbors = check_int(min(15, n_rows - 1) if neighbors is None else neighbors, "density_neighbors", _FN, low=1,
+                          high=n_rows - 1)
+    return first, neighbors
 
 
 def _maxmin(workers: Workers, n_landmarks: int, first: int, metric, progress) -> tuple[np.ndarray, int]:

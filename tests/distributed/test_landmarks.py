@@ -9,7 +9,13 @@ from hypothesis import strategies as st
 
 import tdakit
 from tdakit.distributed import select_landmarks_distributed
-from tdakit.errors import DataFileNotFoundError, InvalidDataError, InvalidParameterError, MemoryBudgetError
+from tdakit.errors import (
+    DataFileNotFoundError,
+    InvalidDataError,
+    InvalidParameterError,
+    MemoryBudgetError,
+    OutputWriteError,
+)
 
 pytestmark = pytest.mark.filterwarnings("ignore::tdakit.errors.DuplicatePointsWarning")
 
@@ -63,13 +69,14 @@ def test_periodic_and_other_metrics_identical(client):
 
 @settings(max_examples=15)
 @given(seed=st.integers(0, 2**31), n_points=st.integers(2, 300), chunk=st.integers(1, 300),
-       ties=st.booleans())
-def test_same_landmarks_for_any_partitioning(client, seed, n_points, chunk, ties):
+       ties=st.booleans(), keep_rows=st.sampled_from(["memory", "disk"]))
+def test_same_landmarks_for_any_partitioning(client, seed, n_points, chunk, ties, keep_rows):
     rng = np.random.default_rng(seed)
     points = rng.integers(0, 3, size=(n_points, 2)).astype(float) if ties else rng.normal(size=(n_points, 2))
     n = int(min(8, len(np.unique(points, axis=0))))
     expected = _in_memory(points, n, rng=seed)
-    _assert_same(expected, select_landmarks_distributed(points, n, rng=seed, client=client, chunk_rows=chunk))
+    _assert_same(expected, select_landmarks_distributed(points, n, rng=seed, client=client, chunk_rows=chunk,
+                                                        keep_rows=keep_rows))
 
 
 def test_random_landmarks_and_their_coverage_identical(client):
@@ -124,7 +131,8 @@ def test_bad_inputs_are_refused_with_the_parameter_named(client, tmp_path):
         (dict(source=good, n_landmarks=0), InvalidParameterError, "n_landmarks"),
         (dict(source=good, n_landmarks=51), InvalidParameterError, "n_landmarks"),
         (dict(source=good, n_landmarks=True), InvalidParameterError, "n_landmarks"),
-        (dict(source=good, n_landmarks=3, method="density"), InvalidParameterError, "method"),
+        (dict(source=good, n_landmarks=3, method="density", density_power=11.0), InvalidParameterError,
+         "density_power"),
         (dict(source=good, n_landmarks=3, method="farthest"), InvalidParameterError, "method"),
         (dict(source=good, n_landmarks=3, metric="precomputed"), InvalidParameterError, "metric"),
         (dict(source=good, n_landmarks=3, metric="periodic"), InvalidParameterError, "box"),
@@ -135,6 +143,8 @@ def test_bad_inputs_are_refused_with_the_parameter_named(client, tmp_path):
         (dict(source=good, n_landmarks=3, per_point=5), InvalidParameterError, "per_point"),
         (dict(source=good, n_landmarks=3, client="tcp://nowhere"), InvalidParameterError, "client"),
         (dict(source=good, n_landmarks=3, progress=3), InvalidParameterError, "progress"),
+        (dict(source=good, n_landmarks=3, keep_rows="ssd"), InvalidParameterError, "keep_rows"),
+        (dict(source=good, n_landmarks=3, keep_rows=None), InvalidParameterError, "keep_rows"),
     ]
     for kwargs, error, parameter in cases:
         with pytest.raises(error) as caught:
@@ -176,10 +186,191 @@ def test_memmap_file_and_dask_array_on_worker_processes(process_client, tmp_path
     np.save(path, points)
     expected = _in_memory(points, 100, rng=5)
     _assert_same(expected, select_landmarks_distributed(path, 100, rng=5, client=process_client))
+    on_disk = select_landmarks_distributed(path, 100, rng=5, client=process_client, keep_rows="disk")
+    _assert_same(expected, on_disk)
+    assert on_disk.params["cluster"]["keep_rows"] == "disk" and _scratch_left(process_client) == []
     _assert_same(expected, select_landmarks_distributed(np.load(path, mmap_mode="r"), 100, rng=5,
                                                         client=process_client, chunk_rows=3000))
     lazy = da.from_array(points, chunks=(2_500, 3))
     _assert_same(expected, select_landmarks_distributed(lazy, 100, rng=5, client=process_client))
+    _assert_same(expected, select_landmarks_distributed(lazy, 100, rng=5, client=process_client, keep_rows="disk"))
     _assert_same(_in_memory(points, 100, rng=5, method="random"),
                  select_landmarks_distributed(path, 100, rng=5, method="random", client=process_client,
                                               per_point=tmp_path / "marks"))
+
+
+# -- rows kept in scratch files (keep_rows="disk") ------------------------------------------------------------------
+
+def _scratch_left(client) -> list[str]:
+    """Scratch files still in any worker's local directory, or still mapped by a worker process.
+
+    Mapped scratch files are unlinked at once, so /proc/self/maps (Linux) is where a leaked one would show.
+    """
+
+    def left_here(dask_worker) -> list[str]:
+        from pathlib import Path
+
+        from tdakit.distributed._worker import SCRATCH_PREFIX
+
+        left = [str(f) for f in Path(dask_worker.local_directory).rglob(SCRATCH_PREFIX + "*")]
+        maps = Path("/proc/self/maps")
+        return left + ([line for line in maps.read_text().splitlines() if SCRATCH_PREFIX in line]
+                       if maps.exists() else [])
+
+    return [line for lines in client.run(left_here).values() for line in lines]
+
+
+@pytest.mark.parametrize("metric", ["euclidean", "periodic", "angular", "manhattan", "chebyshev", "cosine"])
+def test_rows_in_memory_or_on_disk_give_identical_results(client, metric):
+    rng = np.random.default_rng(12)
+    if metric == "angular":
+        points = np.column_stack((rng.uniform(-180, 540, 1200), rng.uniform(-90, 90, 1200)))
+    else:
+        points = rng.uniform(0.1, 10, size=(1200, 3))
+    points[100:110] = points[5]  # exact ties
+    box = 10.0 if metric == "periodic" else None
+    expected = _in_memory(points, 45, rng=3, metric=metric, box=box)
+    for chunk, keep_rows in ((None, "disk"), (97, "disk"), (97, "memory")):
+        got = select_landmarks_distributed(points, 45, rng=3, metric=metric, box=box, client=client,
+                                           chunk_rows=chunk, keep_rows=keep_rows)
+        _assert_same(expected, got)
+        assert got.params["cluster"]["keep_rows"] == keep_rows
+    assert _scratch_left(client) == []
+
+
+def test_rows_on_disk_for_random_landmarks_and_per_point_files(client, tmp_path):
+    points = np.random.default_rng(13).normal(size=(2000, 3))
+    for method in ("maxmin", "random"):
+        expected = _in_memory(points, 30, rng=2, method=method)
+        for per_point in (None, tmp_path / method):
+            _assert_same(expected, select_landmarks_distributed(points, 30, rng=2, method=method, client=client,
+                                                                per_point=per_point, keep_rows="disk",
+                                                                chunk_rows=700))
+    assert _scratch_left(client) == []
+
+
+def test_scratch_files_are_gone_after_an_error_in_the_data(client):
+    points = np.random.default_rng(14).uniform(0, 1, size=(600, 2))
+    points[450, 0] = np.inf
+    with pytest.raises(InvalidDataError, match="infinity at row 450"):
+        select_landmarks_distributed(points, 3, client=client, chunk_rows=200, keep_rows="disk")
+    assert _scratch_left(client) == []
+    with pytest.raises(InvalidParameterError, match="distinct points"):  # fails in the selection, after loading
+        select_landmarks_distributed(np.repeat(points[:3], 4, axis=0), 4, rng=0, client=client, keep_rows="disk")
+    assert _scratch_left(client) == []
+
+
+def test_unwritable_scratch_folder_is_a_clear_error(client, tmp_path, monkeypatch):
+    from tdakit.distributed import _worker
+
+    blocker = tmp_path / "a-file"
+    blocker.write_text("not a folder")
+    monkeypatch.setattr(_worker, "scratch_folder", lambda: str(blocker / "scratch"))  # the workers run here
+    points = np.random.default_rng(15).normal(size=(300, 2))
+    with pytest.raises(OutputWriteError, match="keep_rows='memory'") as caught:
+        select_landmarks_distributed(points, 5, rng=0, client=client, keep_rows="disk")
+    assert caught.value.parameter == "keep_rows" and str(blocker) in str(caught.value)
+    _assert_same(_in_memory(points, 5, rng=0), select_landmarks_distributed(points, 5, rng=0, client=client,
+                                                                           keep_rows="memory"))
+
+
+@pytest.mark.parametrize("fits", [2, 5])  # two workers: coordinates (2), boxes' order (2), per-point results (4)
+def test_a_full_disk_after_loading_is_a_clear_error(client, monkeypatch, fits):
+    from tdakit.distributed import _worker
+
+    made = []
+    real = _worker.Scratch._array
+
+    def fills_up(self, shape, dtype):  # the first ``fits`` scratch arrays fit, the next one does not
+        made.append(shape)
+        if len(made) > fits:
+            raise OSError(28, "No space left on device")
+        return real(self, shape, dtype)
+
+    monkeypatch.setattr(_worker.Scratch, "_array", fills_up)
+    points = np.random.default_rng(19).normal(size=(400, 2))
+    with pytest.raises(OutputWriteError, match="No space left") as caught:
+        select_landmarks_distributed(points, 5, rng=0, client=client, keep_rows="disk")
+    assert caught.value.parameter == "keep_rows" and len(made) > fits
+    assert _scratch_left(client) == []
+
+
+def test_auto_keeps_rows_on_disk_above_half_the_memory_limit(client, monkeypatch):
+    from tdakit.distributed import _worker
+
+    points = np.random.default_rng(16).normal(size=(1000, 3))  # 500 rows a worker: 20 kB of rows and state
+    expected = _in_memory(points, 20, rng=1)
+    for limit, where in ((30_000, "disk"), (50_000, "memory")):
+        monkeypatch.setattr(_worker, "memory_limit", lambda limit=limit: float(limit))
+        got = select_landmarks_distributed(points, 20, rng=1, client=client, keep_rows="auto")
+        assert got.params["cluster"]["keep_rows"] == where
+        _assert_same(expected, got)
+    monkeypatch.setattr(_worker, "memory_limit", lambda: 30_000.0)
+    monkeypatch.setattr(_worker, "file_system", lambda folder: "tmpfs")  # mapping a tmpfs file saves nothing
+    got = select_landmarks_distributed(points, 20, rng=1, client=client, keep_rows="auto")
+    assert got.params["cluster"]["keep_rows"] == "memory"
+    _assert_same(expected, got)
+
+
+def test_file_system_of_a_folder():
+    from pathlib import Path
+
+    from tdakit.distributed._worker import file_system
+
+    if not Path("/proc/mounts").exists():
+        pytest.skip("needs /proc/mounts (Linux)")
+    mounts = [line.split()[1:3] for line in Path("/proc/mounts").read_text().splitlines()]
+    assert file_system("/") == [kind for point, kind in mounts if point == "/"][-1]
+    for point, kind in mounts:
+        if kind == "proc" and point == "/proc":  # the longest mount point holding the folder decides
+            assert file_system("/proc/self") == "proc"
+
+
+# -- the rows are checked by load_cloud's own checks ----------------------------------------------------------------
+
+def _bad_sources():
+    rng = np.random.default_rng(17)
+    sky = np.column_stack((rng.uniform(0, 360, 500), rng.uniform(-90, 90, 500)))
+    far_lon, bad_lat = sky.copy(), sky.copy()
+    far_lon[321, 0] = 725.0
+    bad_lat[321, 1] = -90.5
+    flat = rng.normal(size=(500, 3))
+    zero, infinite = flat.copy(), flat.copy()
+    zero[321] = 0.0
+    infinite[321, 2] = -np.inf
+    tiny = np.vstack((rng.uniform(0, 1, size=(498, 2)), [[0.25, 0.5], [0.25, 0.5 + 1e-14]]))
+    masked = np.ma.masked_array(flat, mask=np.zeros_like(flat, dtype=bool))
+    masked.mask[321, 1] = True
+    return [
+        (far_lon, dict(metric="angular"), InvalidDataError, "longitude 725.0 at row 321"),
+        (bad_lat, dict(metric="angular"), InvalidDataError, "latitude -90.5 at row 321"),
+        (flat, dict(metric="angular"), InvalidDataError, "exactly 2 columns"),
+        (zero, dict(metric="cosine"), InvalidDataError, "all-zero row at row 321"),
+        (infinite, dict(), InvalidDataError, "infinity at row 321"),
+        (tiny, dict(metric="minkowski", p=40.0), InvalidParameterError, "largest order"),
+        (masked, dict(), InvalidDataError, "masked"),
+        (np.array([[0.0, 0.0], [1e-151, 0.0], [0.0, 0.0]]), dict(), InvalidDataError, "underflow"),
+    ]
+
+
+@pytest.mark.parametrize("case", range(len(_bad_sources())))
+def test_the_cluster_refuses_what_load_cloud_refuses(client, case):
+    points, kwargs, error, message = _bad_sources()[case]
+    with pytest.raises(error, match=message):
+        tdakit.load_cloud(points, **kwargs)
+    for chunk in (None, 100):
+        with pytest.raises(error, match=message) as caught:
+            select_landmarks_distributed(points, 2, rng=0, client=client, chunk_rows=chunk, keep_rows="disk",
+                                         **kwargs)
+        assert caught.value.parameter in ("source", "p")
+    assert _scratch_left(client) == []
+
+
+def test_rows_on_disk_for_the_density_methods(client):
+    points = np.random.default_rng(18).normal(size=(900, 3))
+    for method in ("density", "core_maxmin"):
+        got = select_landmarks_distributed(points, 20, method=method, rng=4, client=client, keep_rows="disk",
+                                           chunk_rows=300)
+        _assert_same(_in_memory(points, 20, method=method, rng=4), got)
+        assert got.params["cluster"]["keep_rows"] == "disk"
+    assert _scratch_left(client) == []

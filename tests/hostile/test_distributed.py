@@ -86,8 +86,9 @@ CASES = [
     (f"{SEL}: n_landmarks 10**20", _select(10**20), P, "n_landmarks"),
     (f"{SEL}: more landmarks than distinct points", _with_client(3, source=np.zeros((40, 2))), P, "n_landmarks"),
     # method, metric, rng, start, progress, per_point
-    (f"{SEL}: method density", _select(method="density"), P, "method"),
-    (f"{SEL}: method core_maxmin", _select(method="core_maxmin"), P, "method"),
+    (f"{SEL}: density power 11", _select(method="density", density_power=11.0), P, "density_power"),
+    (f"{SEL}: density neighbours 0", _select(method="density", density_neighbors=0), P, "density_neighbors"),
+    (f"{SEL}: core_maxmin fraction 0", _select(method="core_maxmin", keep_fraction=0.0), P, "keep_fraction"),
     (f"{SEL}: method upper case", _select(method="MAXMIN"), P, "method"),
     (f"{SEL}: method None", _select(method=None), P, "method"),
     (f"{SEL}: metric precomputed", _select(metric="precomputed"), P, "metric"),

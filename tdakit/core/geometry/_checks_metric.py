@@ -14,28 +14,30 @@ from tdakit.errors import InvalidDataError, InvalidParameterError
 _POWER_LIMIT = 300.0
 
 
-def check_points_for_metric(points: NDArray[np.float64], metric: Metric, name: str = "points") -> Metric:
+def check_points_for_metric(points: NDArray[np.float64], metric: Metric, name: str = "points",
+                            first_row: int = 0) -> Metric:
     """Raise InvalidDataError when ``points`` cannot be measured by ``metric``; return the metric.
 
-    A periodic metric given one side length comes back with one side per column.
+    A periodic metric given one side length comes back with one side per column. ``first_row``: the
+    points are rows [first_row, ...) of a larger source (the row numbers in the errors count from there).
     """
     if metric.name == "periodic":
-        return replace(metric, box=_check_in_box(points, metric, name))
+        return replace(metric, box=_check_in_box(points, metric, name, first_row))
     elif metric.name == "minkowski" and metric.p not in (1.0, 2.0) and np.isfinite(metric.p):
         _check_minkowski_range(points, metric.p)
     elif metric.name == "angular":
-        _check_sky(points, name)
+        _check_sky(points, name, first_row)
     elif metric.name == "cosine":
         norms = np.linalg.norm(points, axis=1)
         zero = np.flatnonzero(norms == 0)
         if zero.size:
             raise InvalidDataError(
-                f"Input '{name}' has an all-zero row at row {int(zero[0])}; the cosine dissimilarity is "
+                f"Input '{name}' has an all-zero row at row {first_row + int(zero[0])}; the cosine dissimilarity is "
                 f"undefined for zero vectors. Drop those rows first.", parameter=name)
     return metric
 
 
-def _check_in_box(points, metric, name):
+def _check_in_box(points, metric, name, first_row=0):
     box = np.asarray(metric.box, dtype=np.float64)
     if box.size == 1:
         box = np.full(points.shape[1], box[0])
@@ -47,13 +49,13 @@ def _check_in_box(points, metric, name):
     if outside.any():
         row, col = np.argwhere(outside)[0]
         raise InvalidDataError(
-            f"Input '{name}' has a point outside the periodic box at row {row}: column {col} is "
+            f"Input '{name}' has a point outside the periodic box at row {first_row + row}: column {col} is "
             f"{float(points[row, col])!r}, expected within [0, {float(box[col])!r}]. tdakit does not wrap points "
             f"silently; apply `np.mod(points, box)` yourself if wrapping is intended.", parameter=name)
     return tuple(float(b) for b in box)
 
 
-def _check_sky(points, name):
+def _check_sky(points, name, first_row=0):
     if points.shape[1] != 2:
         raise InvalidDataError(
             f"metric='angular' needs exactly 2 columns (longitude, latitude in degrees); input '{name}' "
@@ -62,16 +64,18 @@ def _check_sky(points, name):
     far = np.flatnonzero(np.abs(lon) > 720)
     if far.size:
         row = int(far[0])
+        at = first_row + row
         raise InvalidDataError(
-            f"Input '{name}' has longitude {float(lon[row])!r} at row {row}; longitudes must lie in [-720, 720] "
+            f"Input '{name}' has longitude {float(lon[row])!r} at row {at}; longitudes must lie in [-720, 720] "
             f"degrees (column 0 is the longitude; values far outside lose precision in the sine and cosine).",
             parameter=name)
     lat = points[:, 1]
     bad = np.flatnonzero((lat < -90) | (lat > 90))
     if bad.size:
         row = int(bad[0])
+        at = first_row + row
         raise InvalidDataError(
-            f"Input '{name}' has latitude {float(lat[row])!r} at row {row}; latitudes must lie in [-90, 90] degrees "
+            f"Input '{name}' has latitude {float(lat[row])!r} at row {at}; latitudes must lie in [-90, 90] degrees "
             f"(column 1 is the latitude).", parameter=name)
 
 

@@ -162,14 +162,17 @@ def _unmask(points: np.ma.MaskedArray, name: str) -> np.ndarray:
     return np.ma.getdata(points)
 
 
-def _check_finite(array: NDArray[np.float64], name: str) -> None:
+def _check_finite(array: NDArray[np.float64], name: str, first_row: int | None = None) -> None:
+    """Refuse NaN or infinity; ``first_row``: the array is rows [first_row, ...) of a larger source."""
     bad = ~np.isfinite(array)
     if bad.any():
         row, col = np.argwhere(bad)[0]
         what = "NaN" if np.isnan(array[row, col]) else "infinity"
+        among = "" if first_row is None else f" of rows {first_row}-{first_row + array.shape[0] - 1}"
         raise InvalidDataError(
-            f"Input '{name}' contains {what} at row {row} (column {col}); {int(bad.any(axis=1).sum())} row(s) "
-            f"are affected. Drop or impute those rows first.", parameter=name)
+            f"Input '{name}' contains {what} at row {(first_row or 0) + row} (column {col}); "
+            f"{int(bad.any(axis=1).sum())} row(s){among} are affected. Drop or impute those rows first.",
+            parameter=name)
 
 
 def check_extent(array: NDArray[np.float64], name: str) -> None:
