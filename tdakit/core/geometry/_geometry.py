@@ -100,6 +100,25 @@ def knn_distances(
     return out
 
 
+# Query points per block in :func:`kth_neighbor_distance` (bounds its (block x k) result arrays).
+KNN_BLOCK_ROWS = 1 << 16
+
+
+def kth_neighbor_distance(cloud: Cloud, k: int) -> NDArray[np.float64]:
+    """Metric distance from every point to its k-th nearest other point (copies at 0), one block of queries at a time.
+
+    The values of ``knn_distances(cloud, k, include_self=False)[:, -1]``; memory 8 bytes a point plus a block.
+    """
+    if not (cloud.distance_matrix is None and _use_tree(cloud)):
+        return knn_distances(cloud, k, include_self=False)[:, -1]
+    tree, points = _tree(cloud, None), working_points(cloud)
+    out = np.empty(cloud.n_points)
+    for start in range(0, cloud.n_points, KNN_BLOCK_ROWS):
+        dist, _ = tree.query(points[start:start + KNN_BLOCK_ROWS], k=k + 1, p=cloud.metric.p, workers=-1)
+        out[start:start + KNN_BLOCK_ROWS] = np.asarray(dist).reshape(-1, k + 1)[:, -1]
+    return to_metric(cloud, out)
+
+
 def knn_table(
     cloud: Cloud, k: int, rows: NDArray[np.intp]
 ) -> tuple[NDArray[np.float64], NDArray[np.intp]]:

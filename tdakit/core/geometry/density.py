@@ -41,7 +41,7 @@ def knn_radius(cloud: Cloud, k: int = 15) -> NDArray[np.float64]:
        behavior of spaces of natural images", Int. J. Comput. Vision 76 (2008) 1-12.
     """
     k = _check_k(cloud, k, "knn_radius")
-    return _geometry.knn_distances(cloud, k, include_self=False)[:, -1]
+    return _geometry.kth_neighbor_distance(cloud, k)
 
 
 def knn_density(cloud: Cloud, k: int = 15, *, calibrated: bool = False) -> NDArray[np.float64]:
