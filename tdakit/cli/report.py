@@ -62,10 +62,22 @@ def feature_lines(table, dimension: int, rows: int) -> list[str]:
     return lines
 
 
+def cluster_lines(run) -> list[str]:
+    """Where the steps ran, for a run made with a Dask scheduler (none otherwise)."""
+    record = run.provenance.get("scheduler")
+    if not isinstance(record, dict):
+        return []
+    steps = record.get("steps") or {}
+    words = {"cluster": "on the cluster", "driver": "here", "not used": "not used"}
+    placed = ", ".join(f"{step} {words.get(where, where)}" for step, where in steps.items())
+    return [f"Cluster: {record.get('address')} ({record.get('n_workers')} workers)" + (f"; {placed}." if placed
+                                                                                         else ".")]
+
+
 def run_report(run, rows: int = 5) -> str:
     """The summary of a saved run, with the leading ``rows`` features of every homology dimension."""
     table = run.table
-    lines = [run.summary(), "", *band_lines(run), bound_line(run), verdict_line(run, table), ""]
+    lines = [run.summary(), *cluster_lines(run), "", *band_lines(run), bound_line(run), verdict_line(run, table), ""]
     for k in range(len(run.diagrams)):
         lines += feature_lines(table, k, rows)
     return "\n".join(lines)

@@ -77,6 +77,10 @@ def test_command_line_scheduler_is_recorded_in_the_run_file(client, tmp_path, ca
                                                     "diagrams": "driver", "replicates": "not used"}
     local = tdakit.analyze(tdakit.load_cloud(tmp_path / "blob.csv"), run.options, rng=run.seed)
     np.testing.assert_array_equal(run.landmarks.indices, local.landmarks.indices)
+    assert main(["summary", str(tmp_path / "out" / "blob.tdkrun")]) == 0
+    said = capsys.readouterr().out
+    assert (f"Cluster: {client.scheduler.address} (2 workers); landmarks on the cluster, witness not used, diagrams "
+            "here, replicates not used.") in said
 
 
 # -- the witness step on the cluster ---------------------------------------------------------------------------
