@@ -211,17 +211,9 @@ def _with_file_lines(exc: InvalidDataError, lines: np.ndarray | None, label: str
 
 def _unmasked(source):
     """A masked array's data when nothing is masked; refused otherwise (tdakit never guesses fill values)."""
-    if not isinstance(source, np.ma.MaskedArray):
-        return source
-    mask = np.ma.getmaskarray(source)
-    if mask.any():
-        where = np.argwhere(mask)[0]
-        raise InvalidDataError(
-            f"Input 'source' is a masked array with {int(mask.sum())} masked entr{'y' if mask.sum() == 1 else 'ies'} "
-            f"(first at row {int(where[0])}{f', column {int(where[-1])}' if where.size > 1 else ''}); tdakit does "
-            f"not drop or fill masked values. Keep the complete rows yourself, e.g. "
-            f"data[~np.ma.getmaskarray(data).any(axis=1)].data.", parameter="source")
-    return np.ma.getdata(source)
+    from tdakit.core.geometry.cloud import _unmask
+
+    return _unmask(source, "source") if isinstance(source, np.ma.MaskedArray) else source
 
 
 def _no_file_options(delimiter, header, key):
