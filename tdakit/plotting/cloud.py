@@ -181,7 +181,7 @@ def _cloud_axes_labels(ax, kind, labels):
         ax.set_anchor("W")
         return
     elif kind == "space":
-        ax.set_box_aspect(None, zoom=0.82)
+        ax.set_box_aspect(None, zoom=1.1)
         for axis in (ax.xaxis, ax.yaxis, ax.zaxis):
             axis.set_major_locator(MaxNLocator(3))
         ax.tick_params(labelsize=5.5, pad=0)
