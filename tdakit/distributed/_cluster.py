@@ -42,6 +42,9 @@ def describe_source(source, function: str) -> tuple[Source, Metric | None]:
     if isinstance(source, (str, os.PathLike)):
         return _file_source(Path(source), function), None
     if _is_dask_array(source):
+        if any(not np.isfinite(size) for size in source.shape):  # rows filtered by a mask: sizes not known yet
+            raise InvalidDataError(f"Input 'source' of {function} is a dask array of unknown shape {source.shape}; "
+                                   f"call its compute_chunk_sizes() first.", parameter="source")
         _check_shape(source.shape, source.dtype, function)
         return Source("dask", int(source.shape[0]), int(source.shape[1]), source, "dask array"), None
     if isinstance(source, np.ma.MaskedArray):
@@ -50,7 +53,9 @@ def describe_source(source, function: str) -> tuple[Source, Metric | None]:
         source = _unmask(source, "source")  # refused with masked entries, as load_cloud does
     if isinstance(source, np.memmap) and getattr(source, "filename", None) is not None:
         _check_shape(source.shape, source.dtype, function)
-        return Source("file", source.shape[0], source.shape[1], _memmap_reader(source), str(source.filename)), None
+        reader = _memmap_reader(source)
+        if reader is not None and _still_mapped(source, reader):
+            return Source("file", source.shape[0], source.shape[1], reader, str(source.filename)), None
     if isinstance(source, np.ndarray):
         _check_shape(source.shape, source.dtype, function)
         return Source("array", source.shape[0], source.shape[1], source, "array"), None
@@ -77,9 +82,37 @@ def _file_source(path: Path, function: str) -> Source:
     return Source("file", mapped.shape[0], mapped.shape[1], _memmap_reader(mapped), str(path))
 
 
-def _memmap_reader(mapped: np.memmap) -> tuple:
+def _memmap_reader(mapped: np.memmap) -> tuple | None:
+    """How a worker maps the same rows itself; None for a view the file cannot describe (then sent as an array).
+
+    A slice of a memmap keeps its parent's ``offset``, so the offset is taken from where its data start in the
+    mapping (the first memmap whose base is the ``mmap`` itself); a strided view has no (offset, shape, order).
+    """
+    import mmap
+
+    root = mapped
+    while isinstance(root.base, np.memmap):
+        root = root.base
+    if not isinstance(root.base, mmap.mmap) or not (mapped.flags.c_contiguous or mapped.flags.f_contiguous):
+        return None
+    offset = int(root.offset) + (mapped.__array_interface__["data"][0] - root.__array_interface__["data"][0])
     order = "F" if mapped.flags.f_contiguous and not mapped.flags.c_contiguous else "C"
-    return (str(Path(mapped.filename).resolve()), int(mapped.offset), mapped.dtype.str, tuple(mapped.shape), order)
+    return (str(Path(mapped.filename).resolve()), offset, mapped.dtype.str, tuple(mapped.shape), order)
+
+
+def _still_mapped(mapped: np.memmap, reader: tuple) -> bool:
+    """Whether the file by that name still holds the mapped rows (not deleted, truncated or replaced since it was
+    mapped): compared at a few rows spread over the array. Else the rows are sent from this process instead.
+    """
+    path, offset, dtype, shape, order = reader
+    try:
+        if os.stat(path).st_size < offset + mapped.nbytes:
+            return False
+        fresh = np.memmap(path, dtype=np.dtype(dtype), mode="r", offset=offset, shape=shape, order=order)
+    except (OSError, ValueError):
+        return False
+    rows = np.unique(np.linspace(0, shape[0] - 1, min(shape[0], 17)).astype(np.int64))
+    return np.asarray(fresh[rows]).tobytes() == np.asarray(mapped[rows]).tobytes()
 
 
 def _check_shape(shape, dtype, function: str) -> None:
@@ -275,12 +308,13 @@ def _place_dask(client, source: Source, chunk_rows: int | None) -> tuple[dict[st
     from distributed import wait
 
     array = source.data
-    if chunk_rows is not None:
-        array = array.rechunk({0: chunk_rows, 1: -1})
+    if chunk_rows is not None:  # at most the rows: dask cannot take a chunk beyond int64 (10**30 failed inside it)
+        array = array.rechunk({0: min(chunk_rows, source.n_rows), 1: -1})
     elif len(array.chunks[1]) > 1:
         array = array.rechunk({1: -1})
     blocks = client.compute(list(array.to_delayed()[:, 0]))
-    wait(blocks)
+    with client.as_current():  # wait() asks for the default client, which the caller need not have set
+        wait(blocks)
     where = client.who_has(blocks)
     offsets = np.concatenate(([0], np.cumsum(array.chunks[0])[:-1]))
     placed: dict[str, list] = {}

@@ -11,14 +11,19 @@ from tdakit._validation import check_int, fail
 from tdakit.distributed import _worker_density as tasks
 from tdakit.distributed._cells import build_cells
 from tdakit.distributed._cluster import Workers, describe_source, get_client, resolve_metric
-from tdakit.errors import InvalidDataError, InvalidParameterError, MemoryBudgetError
+from tdakit.errors import InvalidDataError, InvalidParameterError, MemoryBudgetError, OutputWriteError
 
-__all__ = ["knn_radius_distributed", "density_landmarks", "core_landmarks", "CELLS_PER_WORKER", "SAMPLE_ROWS"]
+__all__ = ["knn_radius_distributed", "density_landmarks", "core_landmarks", "CELLS_PER_WORKER", "FEW_CELLS",
+           "MAX_CELLS_PER_WORKER", "SAMPLE_ROWS"]
 
 # Cells per worker holding rows (several, so that one large cell does not hold up the others).
 CELLS_PER_WORKER = 4
 # Fewest rows a default cell should hold: below it, the tasks' overhead (milliseconds each) outweighs the work.
 MIN_CELL_ROWS = 256
+# Most cells per worker holding rows, and the fewest a cloud may always have, whatever ``n_cells`` asks: a cell of
+# k rows or fewer reaches every other cell, so too many cells cost tasks quadratic in their number, and nothing else.
+MAX_CELLS_PER_WORKER = 64
+FEW_CELLS = 16
 # Rows of cell coordinates the driver samples in all, to place the cell boundaries.
 SAMPLE_ROWS = 20_000
 _FN = "knn_radius_distributed"
@@ -62,7 +67,9 @@ def knn_radius_distributed(
         Rows per partition (default: one partition per worker). The radii do not depend on it.
     n_cells : int, optional
         Spatial cells (default ``CELLS_PER_WORKER`` per worker holding rows, fewer when cells
-        would hold under ``MIN_CELL_ROWS`` rows). The radii do not depend on it.
+        would hold under ``MIN_CELL_ROWS`` rows). At most ``MAX_CELLS_PER_WORKER`` (64) per worker
+        holding rows and ``max(FEW_CELLS, n_points // (k + 1))`` are made: more would only add tasks
+        (a cell of k rows or fewer sends its points to every other cell). The radii do not depend on it.
     per_point : str or path, optional
         A folder every worker can write: the workers write the radii to ``knn_radius.npy`` there
         and the result is that file memory-mapped read-only. Default: gathered into this process,
@@ -121,8 +128,8 @@ def knn_radius_distributed(
     chosen_metric = resolve_metric(metric, box, p, cloud_metric, described.n_cols, _FN)
     if n_cells is not None:
         n_cells = check_int(n_cells, "n_cells", _FN, low=1, note="spatial cells")
-    outputs = _radius_file(per_point, described.n_rows)
     client = get_client(client, _FN)
+    outputs = _radius_file(per_point, described.n_rows)  # after the client: a refused call leaves no file
     workers = Workers(client, described, chosen_metric, 1, chunk_rows, _FN)
     try:
         compute_radii(workers, k, n_cells)
@@ -147,16 +154,30 @@ def _radius_file(per_point, n_rows: int) -> dict | None:
                 f"{GATHER_LIMIT_BYTES / 2**30:.0f} GiB); pass per_point=<a folder every worker can write> to have the "
                 f"workers write them to a memory-mapped file instead.", parameter="per_point")
         return None
-    if not isinstance(per_point, (str, Path)):
+    if not isinstance(per_point, (str, Path)) or not str(per_point).strip():  # "" would be the current folder
         raise fail("per_point", _FN, "None or a folder path", per_point)
     folder = Path(per_point)
     try:
         folder.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise fail("per_point", _FN, f"a folder that can be created and written ({exc})", str(folder)) from None
-    outputs = {"radius": str((folder / "knn_radius.npy").resolve())}
-    np.lib.format.open_memmap(outputs["radius"], mode="w+", dtype=np.float64, shape=(n_rows,)).flush()
-    return outputs
+    return {"radius": new_output_file(folder / "knn_radius.npy", np.float64, n_rows, _FN)}
+
+
+def new_output_file(path: Path, dtype, n_rows: int, function: str) -> str:
+    """Create the ``.npy`` file the workers write a per-point result into (``per_point``); its resolved path.
+
+    A new file, not the old one truncated: an earlier result still mapping it keeps its values (rewritten in
+    place, they changed under it, and reading past a shorter new file could kill the process).
+    """
+    target = Path(path).resolve()
+    try:
+        target.unlink(missing_ok=True)
+        np.lib.format.open_memmap(target, mode="w+", dtype=dtype, shape=(n_rows,)).flush()
+    except OSError as exc:
+        raise OutputWriteError(f"The file {str(target)!r} in the 'per_point' folder of {function} cannot be written: "
+                               f"{exc.strerror or exc}.", parameter="per_point") from None
+    return str(target)
 
 
 def compute_radii(workers: Workers, k: int, n_cells: int | None) -> dict:
@@ -194,6 +215,7 @@ class _Plan:
         samples = [s for s in workers.call("density_sample", max(1, SAMPLE_ROWS // len(self.keys))) if s.size]
         if n_cells is None:
             n_cells = max(1, min(CELLS_PER_WORKER * len(self.keys), workers.source.n_rows // MIN_CELL_ROWS))
+        n_cells = min(n_cells, max(FEW_CELLS, workers.source.n_rows // (k + 1)), MAX_CELLS_PER_WORKER * len(self.keys))
         self.spec = build_cells(np.concatenate(samples), n_cells)
         self.n_cells = int(self.spec["n_cells"])
         self.home = [self.addresses[c % len(self.addresses)] for c in range(self.n_cells)]

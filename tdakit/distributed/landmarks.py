@@ -12,7 +12,7 @@ from tdakit._validation import check_choice, check_float, check_int, check_rng, 
 from tdakit.core.geometry.landmarks import Landmarks
 from tdakit.distributed._cluster import Workers, describe_source, get_client, resolve_metric
 from tdakit.distributed._worker import KEEP_ROWS
-from tdakit.distributed.density import core_landmarks, density_landmarks
+from tdakit.distributed.density import core_landmarks, density_landmarks, new_output_file
 from tdakit.errors import InvalidParameterError, MemoryBudgetError
 
 __all__ = ["select_landmarks_distributed", "DISTRIBUTED_METHODS", "GATHER_LIMIT_BYTES"]
@@ -335,18 +335,15 @@ def _per_point_files(per_point, n_rows: int) -> dict | None:
                 f"this process (limit {GATHER_LIMIT_BYTES / 2**30:.0f} GiB); pass per_point=<a folder every worker "
                 f"can write> to have the workers write them to memory-mapped files instead.", parameter="per_point")
         return None
-    if not isinstance(per_point, (str, Path)):
+    if not isinstance(per_point, (str, Path)) or not str(per_point).strip():  # "" would be the current folder
         raise fail("per_point", _FN, "None or a folder path", per_point)
     folder = Path(per_point)
     try:
         folder.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise fail("per_point", _FN, f"a folder that can be created and written ({exc})", str(folder)) from None
-    outputs = {"nearest": str((folder / "nearest.npy").resolve()),
-               "distance": str((folder / "distance_to_nearest.npy").resolve())}
-    for name, dtype in (("nearest", np.intp), ("distance", np.float64)):
-        np.lib.format.open_memmap(outputs[name], mode="w+", dtype=dtype, shape=(n_rows,)).flush()
-    return outputs
+    return {"nearest": new_output_file(folder / "nearest.npy", np.intp, n_rows, _FN),
+            "distance": new_output_file(folder / "distance_to_nearest.npy", np.float64, n_rows, _FN)}
 
 
 def _assemble(per_row: list, outputs: dict | None, n_rows: int):

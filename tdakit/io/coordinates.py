@@ -244,6 +244,9 @@ class SkyConversion:
         check_choice(self.distance, "distance", "SkyConversion", DISTANCE_KINDS)
         check_choice(self.angle_unit, "angle_unit", "SkyConversion", ANGLE_UNITS)
         check_bool(self.little_h, "little_h", "SkyConversion")
+        if self.recorded_parameters is not None and not isinstance(self.recorded_parameters, Mapping):
+            raise fail("cosmology_parameters", "SkyConversion", "None or a mapping of recorded parameters",
+                       self.recorded_parameters)
         if self.distance == "parallax" and (self.cosmology is not None or self.little_h):
             raise InvalidParameterError(
                 "The 'cosmology' and 'little_h' settings of SkyConversion apply to distance='redshift' only; got "
@@ -277,8 +280,12 @@ class SkyConversion:
             unknown = sorted(set(value) - known)
             if unknown or "distance" not in value:
                 raise fail("sky", "load_cloud", f"a mapping with 'distance' and optional keys {sorted(known)}", value)
-            return cls(value["distance"], value.get("angle_unit", "deg"), value.get("cosmology"),
+            made = cls(value["distance"], value.get("angle_unit", "deg"), value.get("cosmology"),
                        value.get("little_h", False), value.get("cosmology_parameters"))
+            if value.get("unit", made.unit) != made.unit:  # a record's unit follows from its settings
+                raise fail("sky", "load_cloud", f"a mapping whose 'unit', if given, is {made.unit!r} (what these "
+                           f"settings give)", value)
+            return made
         raise fail("sky", "load_cloud", "None, 'parallax', 'redshift', a mapping or a SkyConversion", value)
 
     def to_dict(self) -> dict:

@@ -138,7 +138,7 @@ class FitsSource(Source):
         if isinstance(dataset, str) and dataset.strip().isdigit():  # "--dataset 2" on the command line
             dataset = int(dataset)
         try:
-            hdu = self.hdul[dataset]
+            hdu = None if isinstance(dataset, bool) else self.hdul[dataset]  # True would be read as HDU 1
         except (KeyError, IndexError):
             hdu = None
         if hdu is None or self.hdul.index_of(hdu) not in tables:

@@ -13,8 +13,8 @@ from pathlib import Path
 import numpy as np
 
 from tdakit._validation import fail
-from tdakit.errors import InvalidDataError
-from tdakit.io._atomic import atomic_output
+from tdakit.errors import DataFileNotFoundError, InvalidDataError, TdakitError
+from tdakit.io._atomic import PARTIAL_SUFFIX, atomic_output
 from tdakit.io._files import as_path
 from tdakit.io.catalogues.loading import _enough_rows
 from tdakit.io.catalogues.reading import DEFAULT_CHUNK_ROWS, read_table
@@ -23,6 +23,8 @@ from tdakit.io.coordinates import SkyConversion
 __all__ = ["catalogue_to_npy"]
 
 _FN = "catalogue_to_npy"
+# Longest file name (bytes) the destination's folder takes: the limit of common Linux, macOS and Windows file systems.
+_NAME_MAX = 255
 
 
 def catalogue_to_npy(
@@ -78,12 +80,16 @@ def catalogue_to_npy(
     """
     from tdakit.io.readers import _sha256
 
-    path, target = as_path(source), _destination(destination)
+    path = _path_or_none(source)
+    if path is None:
+        raise fail("source", _FN, "a path to a FITS, HDF5 or Parquet file", source)
+    target = _destination(destination)
+    _check_not_source(path, target)
     conversion = None if sky is None else SkyConversion.from_value(sky)
-    if unit is not None and (not isinstance(unit, str) or not unit.strip()
+    if unit is not None and (not isinstance(unit, str) or not unit.strip() or len(unit) > 40 or not unit.isprintable()
                              or (conversion is not None and unit != conversion.unit)):
-        raise fail("unit", _FN, "None or a unit name" + ("" if conversion is None else
-                                                          f" equal to the conversion's, {conversion.unit!r}"), unit)
+        raise fail("unit", _FN, "None or a short printable unit name (at most 40 characters)" + (
+            "" if conversion is None else f" equal to the conversion's, {conversion.unit!r}"), unit)
     checksum = _sha256(path)
     allocated: list[tuple[int, int]] = []
 
@@ -113,13 +119,53 @@ def catalogue_to_npy(
     return record
 
 
+def _path_or_none(value) -> Path | None:
+    """``value`` as a Path; None for anything else (an ``os.PathLike`` whose ``__fspath__`` gives a number, too)."""
+    if not isinstance(value, (str, bytes, os.PathLike)):
+        return None
+    try:
+        return as_path(value)
+    except TypeError:
+        return None
+
+
 def _destination(destination) -> Path:
-    target = as_path(destination) if isinstance(destination, (str, bytes, os.PathLike)) else None
+    """The checked target: everything that would fail after the ``.npy`` is written fails here, before it."""
+    target = _path_or_none(destination)
     if target is None or target.suffix.lower() != ".npy":
         raise fail("destination", _FN, "a path ending in .npy", destination)
-    if target.is_dir():
-        raise fail("destination", _FN, "a file path, not a folder", str(target))
+    if "\0" in str(target):
+        raise fail("destination", _FN, "a path without a NUL character", str(target))
+    try:
+        longest = _NAME_MAX - len(os.fsencode(f".{target.name}.json.12345678{PARTIAL_SUFFIX}.json"))
+        if longest < 0:  # the description's temporary file is the longest name written
+            raise fail("destination", _FN, f"a file name at most {len(os.fsencode(target.name)) + longest} bytes "
+                       f"long (the folder's limit, {_NAME_MAX}, less room for the description's temporary file)",
+                       target.name)
+        if target.is_dir():
+            raise fail("destination", _FN, "a file path, not a folder", str(target))
+        if target.with_name(target.name + ".json").is_dir():
+            raise fail("destination", _FN, "a file path whose description, <destination>.json, is not a folder",
+                       str(target))
+        if not target.parent.is_dir():
+            raise DataFileNotFoundError(f"The 'destination' parameter of {_FN} names a file in a folder that does "
+                                        f"not exist: {str(target.parent)!r}.", parameter="destination")
+    except TdakitError:
+        raise
+    except OSError as exc:  # e.g. a folder on the way that cannot be searched
+        raise fail("destination", _FN, f"a path that can be examined ({exc.strerror or exc})", str(target)) from None
     return target
+
+
+def _check_not_source(path: Path, target: Path) -> None:
+    """Refuse to write over the catalogue being read (the same file by any name, e.g. a Parquet file named .npy)."""
+    try:
+        same = target.exists() and path.exists() and os.path.samefile(path, target)
+    except (OSError, ValueError):  # unreadable or invalid names: the reader and the writer report them
+        same = False
+    if same:
+        raise fail("destination", _FN, "a file other than the source catalogue (it would be overwritten)",
+                   str(target))
 
 
 def _record(path, checksum, table, where, dataset, drop_missing, conversion) -> dict:
