@@ -15,7 +15,7 @@ from tdakit import errors
 from tdakit._validation import check_choice, check_int, fail
 from tdakit.core.geometry.cloud import Cloud
 from tdakit.core.geometry.metrics import Metric, make_metric
-from tdakit.errors import DataFileNotFoundError, InvalidDataError, InvalidParameterError
+from tdakit.errors import DataFileNotFoundError, InvalidDataError, InvalidParameterError, MemoryBudgetError
 
 
 @dataclass(frozen=True)
@@ -322,3 +322,42 @@ def _place_dask(client, source: Source, chunk_rows: int | None) -> tuple[dict[st
         address = sorted(where[block.key])[0]
         placed.setdefault(address, []).append((int(offset), ("block", block)))
     return placed, blocks
+
+
+def per_point_outputs(per_point, n_rows: int, files: dict, what: str, limit: int, function: str) -> dict | None:
+    """The per-point result files ``{name: (file name, dtype)}`` created in the folder ``per_point``; without a
+    folder (None), the check that gathering them into this process fits ``limit`` bytes, and None.
+    """
+    per_row = sum(np.dtype(dtype).itemsize for _, dtype in files.values())
+    if per_point is None:
+        if per_row * n_rows > limit:
+            raise MemoryBudgetError(
+                f"Gathering every point's {what} would take {per_row * n_rows / 2**30:.1f} GiB in this process (limit "
+                f"{limit / 2**30:.0f} GiB); pass per_point=<a folder every worker can write> to have the workers "
+                f"write to memory-mapped files instead.", parameter="per_point")
+        return None
+    if not isinstance(per_point, (str, Path)) or not str(per_point).strip():  # "" would be the current folder
+        raise fail("per_point", function, "None or a folder path", per_point)
+    folder = Path(per_point)
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise fail("per_point", function, f"a folder that can be created and written ({exc})", str(folder)) from None
+    return {name: _new_output_file(folder / file_name, dtype, n_rows, function)
+            for name, (file_name, dtype) in files.items()}
+
+
+def _new_output_file(path: Path, dtype, n_rows: int, function: str) -> str:
+    """Create the ``.npy`` file the workers write a per-point result into; its resolved path.
+
+    A new file, not the old one truncated: an earlier result still mapping it keeps its values (rewritten in
+    place, they changed under it, and reading past a shorter new file could kill the process).
+    """
+    target = Path(path).resolve()
+    try:
+        target.unlink(missing_ok=True)
+        np.lib.format.open_memmap(target, mode="w+", dtype=dtype, shape=(n_rows,)).flush()
+    except OSError as exc:
+        raise errors.OutputWriteError(f"The file {str(target)!r} in the 'per_point' folder of {function} cannot be "
+                                      f"written: {exc.strerror or exc}.", parameter="per_point") from None
+    return str(target)

@@ -10,8 +10,8 @@ import numpy as np
 from tdakit._validation import check_int, fail
 from tdakit.distributed import _worker_density as tasks
 from tdakit.distributed._cells import build_cells
-from tdakit.distributed._cluster import Workers, describe_source, get_client, resolve_metric
-from tdakit.errors import InvalidDataError, InvalidParameterError, MemoryBudgetError, OutputWriteError
+from tdakit.distributed._cluster import Workers, describe_source, get_client, per_point_outputs, resolve_metric
+from tdakit.errors import InvalidDataError, InvalidParameterError
 
 __all__ = ["knn_radius_distributed", "density_landmarks", "core_landmarks", "CELLS_PER_WORKER", "FEW_CELLS",
            "MAX_CELLS_PER_WORKER", "SAMPLE_ROWS"]
@@ -147,37 +147,8 @@ def knn_radius_distributed(
 def _radius_file(per_point, n_rows: int) -> dict | None:
     from tdakit.distributed.landmarks import GATHER_LIMIT_BYTES
 
-    if per_point is None:
-        if 8 * n_rows > GATHER_LIMIT_BYTES:
-            raise MemoryBudgetError(
-                f"Gathering every point's kNN radius would take {8 * n_rows / 2**30:.1f} GiB in this process (limit "
-                f"{GATHER_LIMIT_BYTES / 2**30:.0f} GiB); pass per_point=<a folder every worker can write> to have the "
-                f"workers write them to a memory-mapped file instead.", parameter="per_point")
-        return None
-    if not isinstance(per_point, (str, Path)) or not str(per_point).strip():  # "" would be the current folder
-        raise fail("per_point", _FN, "None or a folder path", per_point)
-    folder = Path(per_point)
-    try:
-        folder.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise fail("per_point", _FN, f"a folder that can be created and written ({exc})", str(folder)) from None
-    return {"radius": new_output_file(folder / "knn_radius.npy", np.float64, n_rows, _FN)}
-
-
-def new_output_file(path: Path, dtype, n_rows: int, function: str) -> str:
-    """Create the ``.npy`` file the workers write a per-point result into (``per_point``); its resolved path.
-
-    A new file, not the old one truncated: an earlier result still mapping it keeps its values (rewritten in
-    place, they changed under it, and reading past a shorter new file could kill the process).
-    """
-    target = Path(path).resolve()
-    try:
-        target.unlink(missing_ok=True)
-        np.lib.format.open_memmap(target, mode="w+", dtype=dtype, shape=(n_rows,)).flush()
-    except OSError as exc:
-        raise OutputWriteError(f"The file {str(target)!r} in the 'per_point' folder of {function} cannot be written: "
-                               f"{exc.strerror or exc}.", parameter="per_point") from None
-    return str(target)
+    return per_point_outputs(per_point, n_rows, {"radius": ("knn_radius.npy", np.float64)}, "kNN radius",
+                             GATHER_LIMIT_BYTES, _FN)
 
 
 def compute_radii(workers: Workers, k: int, n_cells: int | None) -> dict:

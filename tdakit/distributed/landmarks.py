@@ -10,10 +10,10 @@ import numpy as np
 
 from tdakit._validation import check_choice, check_float, check_int, check_rng, fail
 from tdakit.core.geometry.landmarks import Landmarks
-from tdakit.distributed._cluster import Workers, describe_source, get_client, resolve_metric
+from tdakit.distributed._cluster import Workers, describe_source, get_client, per_point_outputs, resolve_metric
 from tdakit.distributed._worker import KEEP_ROWS
-from tdakit.distributed.density import core_landmarks, density_landmarks, new_output_file
-from tdakit.errors import InvalidParameterError, MemoryBudgetError
+from tdakit.distributed.density import core_landmarks, density_landmarks
+from tdakit.errors import InvalidParameterError
 
 __all__ = ["select_landmarks_distributed", "DISTRIBUTED_METHODS", "GATHER_LIMIT_BYTES"]
 
@@ -328,22 +328,9 @@ def _farthest_corner(low: np.ndarray, high: np.ndarray, target: np.ndarray, metr
 
 def _per_point_files(per_point, n_rows: int) -> dict | None:
     """Create the two output files in ``per_point`` (a folder), or check that gathering fits."""
-    if per_point is None:
-        if 16 * n_rows > GATHER_LIMIT_BYTES:
-            raise MemoryBudgetError(
-                f"Gathering every point's nearest landmark and distance would take {16 * n_rows / 2**30:.1f} GiB in "
-                f"this process (limit {GATHER_LIMIT_BYTES / 2**30:.0f} GiB); pass per_point=<a folder every worker "
-                f"can write> to have the workers write them to memory-mapped files instead.", parameter="per_point")
-        return None
-    if not isinstance(per_point, (str, Path)) or not str(per_point).strip():  # "" would be the current folder
-        raise fail("per_point", _FN, "None or a folder path", per_point)
-    folder = Path(per_point)
-    try:
-        folder.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise fail("per_point", _FN, f"a folder that can be created and written ({exc})", str(folder)) from None
-    return {"nearest": new_output_file(folder / "nearest.npy", np.intp, n_rows, _FN),
-            "distance": new_output_file(folder / "distance_to_nearest.npy", np.float64, n_rows, _FN)}
+    return per_point_outputs(per_point, n_rows, {"nearest": ("nearest.npy", np.intp),
+                                                 "distance": ("distance_to_nearest.npy", np.float64)},
+                             "nearest landmark and distance", GATHER_LIMIT_BYTES, _FN)
 
 
 def _assemble(per_row: list, outputs: dict | None, n_rows: int):
