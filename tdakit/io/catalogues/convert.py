@@ -46,7 +46,7 @@ def catalogue_to_npy(
     ``.npy`` file; sky positions are converted in place. The file holds exactly the points
     ``load_cloud(source, columns=..., where=..., sky=...)`` would hold, in the same order, so its row
     numbers are the cloud's. A description (source checksum, columns, filter, units, conversion) is
-    written beside it as ``<destination>.json``. Both files appear complete or not at all.
+    written beside it as ``<destination>.json``. Each file appears complete or not at all (the ``.npy`` first).
 
     Parameters
     ----------
