@@ -1,37 +1,21 @@
 """Spatial cells for the distributed k-nearest-neighbour radius: kd-style median splits, and which cells a ball reaches.
 
-A point's cell is a pure function of its *cell coordinates*: the working coordinates, except for sky
-positions and cosine directions, whose unit vectors are rounded to ``UNIT_VECTOR_TOLERANCE`` exactly as
-:func:`tdakit.core.geometry.cloud.first_occurrences` does before it compares rows. Rows that the core
-counts as copies of one point therefore always share a cell, and each cell can find first occurrences
-on its own.
+A point's cell is a pure function of its *cell coordinates*, the coordinates the core compares for copies
+(:func:`tdakit.core.geometry.cloud.duplicate_coordinates`: working coordinates, unit vectors rounded). Rows
+that the core counts as copies of one point therefore always share a cell, and each cell can find first
+occurrences on its own.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from tdakit.core.geometry.cloud import UNIT_VECTOR_TOLERANCE
 from tdakit.core.geometry.metrics import Metric
 
 # Relative slack on a radius before it is compared with box gaps or given to the tree as a search bound:
 # the tree's distances and these gaps are rounded differently (a few units of 1e-16), so a little more is
 # searched, never less (common practice).
 RELATIVE_SLACK = 1e-9
-
-
-def cell_coordinates(work: np.ndarray, metric: Metric) -> np.ndarray:
-    """The coordinates that decide a row's cell and whether two rows are copies (C-contiguous float64)."""
-    rows = np.asarray(work, dtype=np.float64)
-    if metric.name in ("angular", "cosine"):
-        rows = np.round(rows / UNIT_VECTOR_TOLERANCE)
-    return np.ascontiguousarray(rows + 0.0)  # -0.0 counts as 0.0
-
-
-def row_keys(coordinates: np.ndarray) -> np.ndarray:
-    """One hashable key per row of cell coordinates; equal keys are the rows the core counts as one point."""
-    coordinates = np.ascontiguousarray(coordinates)
-    return coordinates.view(np.dtype((np.void, coordinates.dtype.itemsize * coordinates.shape[1]))).ravel()
 
 
 def build_cells(sample: np.ndarray, n_cells: int) -> dict:

@@ -15,8 +15,9 @@ from __future__ import annotations
 
 import numpy as np
 
+from tdakit.core.geometry.cloud import duplicate_coordinates
 from tdakit.core.geometry.metrics import Metric
-from tdakit.distributed._cells import assign_cells, cell_coordinates, reach_bound, reached_cells, row_keys
+from tdakit.distributed._cells import assign_cells, reach_bound, reached_cells
 
 # Rows queried (or drawn) at a time: bounds the (rows x k) result arrays of one query.
 QUERY_ROWS = 1 << 16
@@ -44,7 +45,7 @@ class DensityMixin:
         """About ``per_worker`` rows' cell coordinates, evenly spread over this worker's rows."""
         total = sum(part.n for part in self.parts)
         step = max(1, total // max(int(per_worker), 1))
-        picked = [cell_coordinates(part.work[(-part.offset) % step::step], self.metric) for part in self.parts]
+        picked = [duplicate_coordinates(part.work[(-part.offset) % step::step], self.metric) for part in self.parts]
         picked = [p for p in picked if p.shape[0]]
         return np.concatenate(picked) if picked else np.empty((0, 0))
 
@@ -190,7 +191,7 @@ def cut_rows(actor_key: str, spec: dict) -> dict:
     found: dict[int, list] = {}
     for part in actor.parts:
         work = part.work
-        cells = assign_cells(cell_coordinates(work, actor.metric), spec)
+        cells = assign_cells(duplicate_coordinates(work, actor.metric), spec)
         order = np.argsort(cells, kind="stable")
         bounds = np.searchsorted(cells[order], np.arange(spec["n_cells"] + 1))
         for cell in range(spec["n_cells"]):
@@ -333,10 +334,11 @@ def merge(state: dict, k: int, metric: Metric, owners: tuple, picks: list, *sour
 
 def _first_occurrences(work: np.ndarray, rows: np.ndarray, metric: Metric) -> np.ndarray:
     """Flags of the rows that repeat no lower row (every copy of a point lives in this cell)."""
+    from tdakit.core.geometry.cloud import first_occurrences
+
     order = np.argsort(rows, kind="stable")
-    _, first = np.unique(row_keys(cell_coordinates(work, metric))[order], return_index=True)
     flags = np.zeros(rows.size, dtype=bool)
-    flags[order[first]] = True
+    flags[order[first_occurrences(work[order], metric, embedded=True)]] = True
     return flags
 
 

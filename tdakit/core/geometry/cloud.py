@@ -198,14 +198,27 @@ def check_extent(array: NDArray[np.float64], name: str) -> None:
 UNIT_VECTOR_TOLERANCE = 1e-12
 
 
-def _duplicate_keys(array: NDArray[np.float64], metric: Metric | None) -> NDArray[np.void]:
-    """One hashable key per row; equal keys are points at distance 0 under ``metric``."""
+def duplicate_coordinates(work: NDArray[np.float64], metric: Metric | None) -> NDArray[np.float64]:
+    """Working coordinates as compared for copies (C-contiguous float64).
+
+    Unit vectors (sky positions, cosine directions) are rounded to ``UNIT_VECTOR_TOLERANCE`` and -0.0
+    counts as 0.0; equal rows are points at distance 0.
+    """
+    rows = np.asarray(work, dtype=np.float64)
+    if metric is not None and metric.name in ("angular", "cosine"):
+        rows = np.round(rows / UNIT_VECTOR_TOLERANCE)
+    return np.ascontiguousarray(rows + 0.0)
+
+
+def _duplicate_keys(array: NDArray[np.float64], metric: Metric | None, embedded: bool = False) -> NDArray[np.void]:
+    """One hashable key per row; equal keys are points at distance 0 under ``metric``.
+
+    ``embedded``: the rows are already working coordinates (``metric.embed``).
+    """
     rows = np.asarray(array, dtype=np.float64)
-    if metric is not None and metric.name in ("angular", "cosine", "periodic"):
+    if not embedded and metric is not None and metric.name in ("angular", "cosine", "periodic"):
         rows = metric.embed(rows)  # working coordinates: 0 and 360 degrees, or 0 and the box side, coincide
-        if metric.name != "periodic":
-            rows = np.round(rows / UNIT_VECTOR_TOLERANCE)
-    rows = np.ascontiguousarray(rows + 0.0)  # -0.0 counts as 0.0
+    rows = duplicate_coordinates(rows, metric)
     return rows.view(np.dtype((np.void, rows.dtype.itemsize * rows.shape[1]))).ravel()
 
 
@@ -213,11 +226,11 @@ def _duplicate_keys(array: NDArray[np.float64], metric: Metric | None) -> NDArra
 _HASH_ROWS = 1 << 16
 
 
-def _row_hashes(array: NDArray[np.float64], metric: Metric | None) -> NDArray[np.uint64]:
+def _row_hashes(array: NDArray[np.float64], metric: Metric | None, embedded: bool = False) -> NDArray[np.uint64]:
     """A 64-bit hash of every row's duplicate key (equal keys give equal hashes), computed a block at a time."""
     hashes = np.empty(array.shape[0], dtype=np.uint64)
     for start in range(0, array.shape[0], _HASH_ROWS):
-        keys = _duplicate_keys(array[start:start + _HASH_ROWS], metric)
+        keys = _duplicate_keys(array[start:start + _HASH_ROWS], metric, embedded)
         words = keys.view(np.uint64).reshape(keys.size, -1)
         mixed = np.full(keys.size, 0x9E3779B97F4A7C15, dtype=np.uint64)
         for column in words.T:  # FNV-style combination, then the splitmix64 finaliser (common practice)
@@ -230,18 +243,20 @@ def _row_hashes(array: NDArray[np.float64], metric: Metric | None) -> NDArray[np
     return hashes
 
 
-def first_occurrences(array: NDArray[np.float64], metric: Metric | None = None) -> NDArray[np.intp]:
+def first_occurrences(array: NDArray[np.float64], metric: Metric | None = None, *,
+                      embedded: bool = False) -> NDArray[np.intp]:
     """Sorted indices of the rows that repeat no earlier row: one representative of every distinct point.
 
     Rows are compared exactly, except for sky positions and cosine directions, compared as unit vectors
-    to ``UNIT_VECTOR_TOLERANCE``, and periodic coordinates, compared after wrapping the box side to 0.
-    Memory: about 25 bytes a row (a hash, its sort order and the sorted hashes); only rows whose hash
-    another row shares are compared in full.
+    to ``UNIT_VECTOR_TOLERANCE``, and periodic coordinates, compared after wrapping the box side to 0
+    (``embedded``: the rows are already working coordinates, ``metric.embed``). Memory: about 25 bytes
+    a row (a hash, its sort order and the sorted hashes); only rows whose hash another row shares are
+    compared in full.
     """
     n = array.shape[0]
     if n == 0:
         return np.zeros(0, dtype=np.intp)
-    hashes = _row_hashes(array, metric)
+    hashes = _row_hashes(array, metric, embedded)
     order = np.argsort(hashes, kind="stable")
     hashes = hashes[order]
     shared = np.zeros(n, dtype=bool)
@@ -252,7 +267,7 @@ def first_occurrences(array: NDArray[np.float64], metric: Metric | None = None) 
         return np.arange(n, dtype=np.intp)
     suspects = np.sort(order[shared])
     del order, shared
-    _, first = np.unique(_duplicate_keys(array[suspects], metric), return_index=True)
+    _, first = np.unique(_duplicate_keys(array[suspects], metric, embedded), return_index=True)
     keep = np.ones(n, dtype=bool)
     keep[suspects] = False
     keep[suspects[first]] = True

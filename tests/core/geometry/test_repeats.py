@@ -56,5 +56,6 @@ def test_blocks_do_not_change_the_answer(monkeypatch):
 def test_hash_collisions_are_resolved_exactly(monkeypatch):
     """Even if every row hashed alike, only truly equal rows would count as repeats."""
     points = np.array([[1.0, 2.0], [3.0, 4.0], [1.0, 2.0], [5.0, 6.0], [3.0, 4.0]])
-    monkeypatch.setattr(cloud_module, "_row_hashes", lambda array, metric: np.zeros(array.shape[0], np.uint64))
+    monkeypatch.setattr(cloud_module, "_row_hashes",
+                        lambda array, metric, embedded=False: np.zeros(array.shape[0], np.uint64))
     assert first_occurrences(points, None).tolist() == [0, 1, 3]
