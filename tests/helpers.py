@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import math
 
@@ -71,3 +72,15 @@ def assert_refused(result, needles, code=1):
         assert "usage:" in err, err
     needles = (needles,) if isinstance(needles, str) else needles
     assert any(needle in err for needle in needles), (needles, err)
+
+
+@contextlib.contextmanager
+def in_process_client(n_workers: int, *, default: bool = True):
+    """A Dask client of ``n_workers`` single-threaded workers in this process (``default=False``: not set as the
+    default client, so nothing may rely on one)."""
+    import distributed
+
+    with distributed.LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=False,
+                                  dashboard_address=None) as cluster:
+        with distributed.Client(cluster, set_as_default=default) as connected:
+            yield connected

@@ -2,16 +2,16 @@
 
 import pytest
 
+from tests.helpers import in_process_client
+
 distributed = pytest.importorskip("distributed")
 
 
 @pytest.fixture(scope="module")
 def client():
     """Two single-threaded workers in this process: the same actors and messages, without process start-up."""
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
-                                  dashboard_address=None) as cluster:
-        with distributed.Client(cluster) as connected:
-            yield connected
+    with in_process_client(2) as connected:
+        yield connected
 
 
 @pytest.fixture(scope="module")

@@ -19,6 +19,7 @@ from tdakit import shapes
 from tdakit.core.geometry.cloud import Cloud
 from tdakit.core.geometry.metrics import make_metric
 from tdakit.errors import DataFileNotFoundError, InvalidDataError, InvalidParameterError, OutputWriteError
+from tests.helpers import in_process_client
 
 distributed = pytest.importorskip("distributed")
 da = pytest.importorskip("dask.array")
@@ -45,10 +46,8 @@ EDGES = np.repeat(np.array([[0.01, 0.5], [0.99, 0.5], [0.5, 0.5]]), 5, axis=0)  
 @pytest.fixture(scope="module")
 def client():
     """Two worker threads in this process; not the default client, so nothing relies on one being set."""
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
-                                  dashboard_address=None) as cluster:
-        with distributed.Client(cluster, set_as_default=False) as connected:
-            yield connected
+    with in_process_client(2, default=False) as connected:
+        yield connected
 
 
 @pytest.fixture(scope="module")

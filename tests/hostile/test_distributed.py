@@ -11,6 +11,7 @@ import pytest
 import tdakit
 from tdakit import shapes
 from tdakit.errors import DataFileNotFoundError, InvalidDataError, InvalidParameterError, MemoryBudgetError
+from tests.helpers import in_process_client
 
 distributed = pytest.importorskip("distributed")
 
@@ -30,10 +31,8 @@ SEL, WIT = "select_landmarks_distributed", "witness_edge_values_distributed"
 @pytest.fixture(scope="module")
 def client():
     """One worker thread in this process; not the default client, so ``client=None`` still finds none."""
-    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=False,
-                                  dashboard_address=None) as cluster:
-        with distributed.Client(cluster, set_as_default=False) as connected:
-            yield connected
+    with in_process_client(1, default=False) as connected:
+        yield connected
 
 
 @pytest.fixture(scope="module")
