@@ -140,8 +140,8 @@ def _destination(destination) -> Path:
         longest = _NAME_MAX - len(os.fsencode(f".{target.name}.json.12345678{PARTIAL_SUFFIX}.json"))
         if longest < 0:  # the description's temporary file is the longest name written
             raise fail("destination", _FN, f"a file name at most {len(os.fsencode(target.name)) + longest} bytes "
-                       f"long (the folder's limit, {_NAME_MAX}, less room for the description's temporary file)",
-                       target.name)
+                       f"long (the usual file-name limit, {_NAME_MAX} bytes, less room for the description's "
+                       f"temporary file)", target.name)
         if target.is_dir():
             raise fail("destination", _FN, "a file path, not a folder", str(target))
         if target.with_name(target.name + ".json").is_dir():
