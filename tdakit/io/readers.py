@@ -150,9 +150,6 @@ def load_cloud(
                            standardized=standardize)
         return cloud
     read = _read_source(source, columns, delimiter=delimiter, header=header, key=key)
-    named_unit = unit
-    if unit is None and metric_obj.name == "angular":
-        unit = "deg"
     try:
         cloud = make_cloud(read.table, metric_obj, columns=read.names, source=read.label, standardize=standardize,
                            source_checksum=read.checksum, read_options=read.options, unit=unit)
@@ -160,7 +157,7 @@ def load_cloud(
         if not read.from_file:
             raise
         raise _with_file_lines(exc, read.lines, read.label) from None
-    warn_if_suspicious(read.table, cloud, columns_chosen=columns is not None, unit_named=named_unit is not None,
+    warn_if_suspicious(read.table, cloud, columns_chosen=columns is not None, unit_named=unit is not None,
                        standardized=standardize)
     return cloud
 

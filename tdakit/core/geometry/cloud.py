@@ -303,7 +303,7 @@ def make_cloud(
         n_dup = int(np.triu(matrix == 0.0, k=1).any(axis=0).sum())
         empty = np.zeros((matrix.shape[0], 0))
         return _finish(Cloud(empty, metric, (), source, matrix, n_dup, source_checksum=source_checksum,
-                              read_options=read_options, unit=_check_unit(unit)))
+                              read_options=read_options, unit=check_unit(unit)))
     array = as_point_array(points)
     cols = tuple(columns) if columns is not None else tuple(f"x{i}" for i in range(array.shape[1]))
     shift = scale = None
@@ -313,17 +313,20 @@ def make_cloud(
     from tdakit.core.geometry._checks_metric import check_points_for_metric
 
     metric = check_points_for_metric(array, metric)
+    if unit is None and metric.name == "angular":
+        unit = "deg"  # sky positions are read in degrees
     cloud = Cloud(array, metric, cols, source, None, count_duplicates(array, metric), shift, scale, source_checksum,
-                  read_options, _check_unit(unit))
+                  read_options, check_unit(unit))
     return _finish(cloud)
 
 
-def _check_unit(unit):
+def check_unit(unit, function: str = "load_cloud") -> str | None:
+    """A coordinate unit: None or a short printable name (stripped); refused otherwise, naming ``function``."""
     if unit is None:
         return None
     if not isinstance(unit, str) or not unit.strip() or len(unit) > 40 or not unit.isprintable():
         raise InvalidParameterError(
-            f"Parameter 'unit' of load_cloud must be None or a short printable name such as 'Mpc/h', 'pc' or "
+            f"Parameter 'unit' of {function} must be None or a short printable name such as 'Mpc/h', 'pc' or "
             f"'deg' (at most 40 characters). Got {unit!r} instead.", parameter="unit")
     return unit.strip()
 

@@ -13,10 +13,11 @@ from pathlib import Path
 import numpy as np
 
 from tdakit._validation import fail
+from tdakit.core.geometry.cloud import check_unit
 from tdakit.errors import DataFileNotFoundError, InvalidDataError, TdakitError
 from tdakit.io._atomic import PARTIAL_SUFFIX, atomic_output
 from tdakit.io._files import as_path
-from tdakit.io.catalogues.loading import _enough_rows
+from tdakit.io.catalogues.loading import _enough_rows, _unit
 from tdakit.io.catalogues.reading import DEFAULT_CHUNK_ROWS, read_table
 from tdakit.io.coordinates import SkyConversion
 
@@ -86,10 +87,9 @@ def catalogue_to_npy(
     target = _destination(destination)
     _check_not_source(path, target)
     conversion = None if sky is None else SkyConversion.from_value(sky)
-    if unit is not None and (not isinstance(unit, str) or not unit.strip() or len(unit) > 40 or not unit.isprintable()
-                             or (conversion is not None and unit != conversion.unit)):
-        raise fail("unit", _FN, "None or a short printable unit name (at most 40 characters)" + (
-            "" if conversion is None else f" equal to the conversion's, {conversion.unit!r}"), unit)
+    unit = check_unit(unit, _FN)
+    if unit is not None and conversion is not None and unit != conversion.unit:
+        raise fail("unit", _FN, f"None or the conversion's unit, {conversion.unit!r}", unit)
     checksum = _sha256(path)
     allocated: list[tuple[int, int]] = []
 
@@ -111,8 +111,7 @@ def catalogue_to_npy(
             conversion.convert(values, table.units, chunk_rows=chunk_rows)
         values.flush()
         del values
-    record = _record(path, checksum, table, where, dataset, drop_missing, conversion)
-    record["unit"] = unit or record["unit"]
+    record = _record(path, checksum, table, where, dataset, drop_missing, conversion, unit)
     description = target.with_name(target.name + ".json")
     with atomic_output(description, what="description of the converted catalogue") as temporary:
         temporary.write_text(json.dumps(record, indent=2), encoding="utf-8")
@@ -168,16 +167,11 @@ def _check_not_source(path: Path, target: Path) -> None:
                    str(target))
 
 
-def _record(path, checksum, table, where, dataset, drop_missing, conversion) -> dict:
-    unit = conversion.unit if conversion is not None else _shared_unit(table.units)
+def _record(path, checksum, table, where, dataset, drop_missing, conversion, unit) -> dict:
+    unit = conversion.unit if conversion is not None else _unit(unit, table.columns, table.units)
     return {"source": str(path.resolve()), "source_sha256": checksum, "file_format": table.file_format,
             "columns": ["x", "y", "z"] if conversion is not None else list(table.columns),
             "read_columns": list(table.columns), "where": where, "dataset": dataset,
             "drop_missing": bool(drop_missing), "n_rows": int(table.values.shape[0]),
             "n_rows_in_file": int(table.n_rows), "n_dropped_missing": int(table.n_dropped_missing),
             "units": list(table.units), "unit": unit, "sky": None if conversion is None else conversion.to_dict()}
-
-
-def _shared_unit(units) -> str | None:
-    named = {u for u in units if u is not None}
-    return units[0] if len(named) == 1 and None not in units else None

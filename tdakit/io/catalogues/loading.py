@@ -62,8 +62,6 @@ def load_catalogue(source, *, columns, metric, standardize: bool, unit, where=No
         values, names, unit = _convert(table.values, conversion, table.units, unit)
     else:
         values, names, unit = table.values, table.columns, _unit(unit, table.columns, table.units)
-    if unit is None and metric.name == "angular":
-        unit = "deg"
     given = (("file_format", file_format), ("dataset", dataset), ("where", where), ("columns", list(table.columns)),
              ("drop_missing", drop_missing or None), ("sky", None if conversion is None else conversion.to_dict()))
     return make_cloud(values, metric, columns=names, source=str(path.resolve()), standardize=standardize,
