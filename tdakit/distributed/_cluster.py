@@ -187,7 +187,12 @@ def get_client(client, function: str):
 
 
 def worker_addresses(client, function: str) -> list[str]:
-    workers = sorted(client.scheduler_info(n_workers=-1)["workers"])
+    """The addresses of the workers that have joined, asked of the scheduler itself.
+
+    Not ``client.scheduler_info()["workers"]``: the client's own periodic refresh can replace its cached
+    answer with one that lists no worker between the fetch and the read (seen in tests).
+    """
+    workers = sorted(client.sync(client.scheduler.identity, n_workers=-1).get("workers", {}))
     if not workers:
         raise fail("client", function, "a Client with at least one worker (none has joined yet; "
                    "client.wait_for_workers(n) waits for them)", client)

@@ -6,7 +6,7 @@ import numpy as np
 
 from tdakit._validation import check_float, check_int, fail
 from tdakit.core.geometry.landmarks import Landmarks
-from tdakit.distributed._cluster import Workers, describe_source, get_client, resolve_metric
+from tdakit.distributed._cluster import Workers, describe_source, get_client, resolve_metric, worker_addresses
 from tdakit.errors import MemoryBudgetError
 
 __all__ = ["witness_edge_values_distributed"]
@@ -71,7 +71,7 @@ def witness_edge_values_distributed(
                                                        allow_inf=True)
     chosen_metric = resolve_metric(metric, box, p, cloud_metric, described.n_cols, _FN)
     client = get_client(client, _FN)
-    _check_matrix_memory(rows.size, len(client.scheduler_info(n_workers=-1)["workers"]))
+    _check_matrix_memory(rows.size, len(worker_addresses(client, _FN)))
     workers = Workers(client, described, chosen_metric, 1, chunk_rows, _FN)
     try:
         marks = workers.coordinates(rows.tolist())
